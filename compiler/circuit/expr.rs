@@ -1,0 +1,341 @@
+//! Evaluation of angle and number expressions.
+//!
+//! Real arithmetic in IEEE double precision while every value is real, so
+//! that `sin(pi/6)` is the libm value and `asin(2)` a domain error; complex
+//! arithmetic (num-complex) only once an imaginary literal or `i` enters,
+//! which only matrix entries allow. Every failure is a located diagnostic:
+//! division by zero, a literal too large for a double, a result that is not
+//! finite, a function outside its domain.
+
+use super::units::{self, Kind};
+use crate::diagnostic::Diagnostic;
+use crate::syntax::ast::{BinOp, Expr, ExprKind, Quantity};
+use num_complex::Complex64;
+use std::collections::BTreeMap;
+
+/// The names an expression may read: definition parameters (their values
+/// already in internal units) besides `pi` and, in matrices, `i`.
+#[derive(Clone, Debug, Default)]
+pub struct Scope {
+    pub params: BTreeMap<String, f64>,
+}
+
+pub const FUNCTIONS: [&str; 9] = [
+    "sqrt", "sin", "cos", "tan", "asin", "acos", "atan", "exp", "ln",
+];
+
+/// Evaluates an expression. `complex` allows `i` and imaginary literals.
+pub fn eval(e: &Expr, scope: &Scope, complex: bool) -> Result<Complex64, Diagnostic> {
+    let v = match &e.kind {
+        ExprKind::Number(text) => real(parse_literal(text, e)?),
+        ExprKind::Imaginary(text) => {
+            if !complex {
+                return Err(not_here(e));
+            }
+            Complex64::new(0.0, parse_literal(text, e)?)
+        }
+        ExprKind::Name(n) => match n.as_str() {
+            "pi" => real(std::f64::consts::PI),
+            "i" if complex => Complex64::new(0.0, 1.0),
+            "i" => return Err(not_here(e)),
+            _ => match scope.params.get(n) {
+                Some(v) => real(*v),
+                None => return Err(unknown_name(e, n, scope)),
+            },
+        },
+        ExprKind::Neg(x) => -eval(x, scope, complex)?,
+        ExprKind::Binary { op, lhs, rhs } => {
+            let a = eval(lhs, scope, complex)?;
+            let b = eval(rhs, scope, complex)?;
+            match op {
+                BinOp::Add => a + b,
+                BinOp::Sub => a - b,
+                BinOp::Mul => a * b,
+                BinOp::Div => {
+                    if b == Complex64::new(0.0, 0.0) {
+                        return Err(Diagnostic::error(
+                            "division-by-zero",
+                            "division by zero",
+                            rhs.span,
+                            "this is zero",
+                        )
+                        .with_label(e.span, "in this quotient"));
+                    }
+                    if is_real(a) && is_real(b) {
+                        real(a.re / b.re)
+                    } else {
+                        a / b
+                    }
+                }
+                BinOp::Pow => {
+                    if is_real(a) && is_real(b) {
+                        if a.re < 0.0 && b.re.fract() != 0.0 {
+                            return Err(Diagnostic::error(
+                                "domain",
+                                format!(
+                                    "a negative number to a fractional power ({} ^ {}) is not real",
+                                    a.re, b.re
+                                ),
+                                e.span,
+                                "not a real number",
+                            ));
+                        }
+                        if a.re == 0.0 && b.re < 0.0 {
+                            return Err(Diagnostic::error(
+                                "division-by-zero",
+                                "zero to a negative power",
+                                e.span,
+                                "divides by zero",
+                            ));
+                        }
+                        real(a.re.powf(b.re))
+                    } else {
+                        a.powc(b)
+                    }
+                }
+            }
+        }
+        ExprKind::Call { func, arg } => {
+            let x = eval(arg, scope, complex)?;
+            call(&func.text, x, e, arg)?
+        }
+    };
+    if !v.re.is_finite() || !v.im.is_finite() {
+        return Err(Diagnostic::error(
+            "overflow",
+            "the value is too large for a double-precision number",
+            e.span,
+            "overflows",
+        )
+        .with_hint("values beyond about 1.8e308 cannot be represented"));
+    }
+    Ok(v)
+}
+
+fn real(x: f64) -> Complex64 {
+    Complex64::new(x, 0.0)
+}
+
+fn is_real(z: Complex64) -> bool {
+    z.im == 0.0
+}
+
+fn parse_literal(text: &str, e: &Expr) -> Result<f64, Diagnostic> {
+    match text.parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok(v),
+        _ => Err(Diagnostic::error(
+            "overflow",
+            format!("the number {text} is too large for a double-precision number"),
+            e.span,
+            "too large",
+        )
+        .with_hint("values beyond about 1.8e308 cannot be represented")),
+    }
+}
+
+fn not_here(e: &Expr) -> Diagnostic {
+    Diagnostic::error(
+        "complex-not-allowed",
+        "imaginary numbers are allowed only in matrix entries",
+        e.span,
+        "imaginary",
+    )
+    .with_hint("angles, fractions and lengths are real numbers")
+}
+
+fn unknown_name(e: &Expr, n: &str, scope: &Scope) -> Diagnostic {
+    let mut known: Vec<&str> = scope.params.keys().map(String::as_str).collect();
+    known.push("pi");
+    let d = Diagnostic::error(
+        "unknown-name",
+        format!("unknown name `{n}` in an expression"),
+        e.span,
+        "not defined here",
+    );
+    match super::suggest::nearest(n, known.iter().copied()) {
+        Some(s) => d.with_hint(format!("did you mean `{s}`?")),
+        None if scope.params.is_empty() => d.with_hint("an expression may use numbers, `pi`, and the functions sqrt sin cos tan asin acos atan exp ln"),
+        None => d.with_hint(format!("names in scope: {}", known.join(", "))),
+    }
+}
+
+fn call(func: &str, x: Complex64, e: &Expr, arg: &Expr) -> Result<Complex64, Diagnostic> {
+    let domain = |what: &str| {
+        Err(Diagnostic::error(
+            "domain",
+            format!("{func}({}) is undefined: {what}", fmt_real(x.re)),
+            e.span,
+            "outside the domain",
+        )
+        .with_label(arg.span, "this argument"))
+    };
+    if is_real(x) {
+        let r = x.re;
+        let v = match func {
+            "sqrt" if r < 0.0 => return domain("the argument is negative"),
+            "sqrt" => r.sqrt(),
+            "sin" => r.sin(),
+            "cos" => r.cos(),
+            "tan" => {
+                if r.cos().abs() < 1e-15 {
+                    return domain("the tangent has a pole there");
+                }
+                r.tan()
+            }
+            "asin" if r.abs() > 1.0 => return domain("the argument is outside [-1, 1]"),
+            "asin" => r.asin(),
+            "acos" if r.abs() > 1.0 => return domain("the argument is outside [-1, 1]"),
+            "acos" => r.acos(),
+            "atan" => r.atan(),
+            "exp" => r.exp(),
+            "ln" if r <= 0.0 => return domain("the argument is not positive"),
+            "ln" => r.ln(),
+            _ => return Err(unknown_function(func, e)),
+        };
+        return Ok(real(v));
+    }
+    Ok(match func {
+        "sqrt" => x.sqrt(),
+        "sin" => x.sin(),
+        "cos" => x.cos(),
+        "tan" => x.tan(),
+        "asin" => x.asin(),
+        "acos" => x.acos(),
+        "atan" => x.atan(),
+        "exp" => x.exp(),
+        "ln" => x.ln(),
+        _ => return Err(unknown_function(func, e)),
+    })
+}
+
+fn unknown_function(func: &str, e: &Expr) -> Diagnostic {
+    let d = Diagnostic::error(
+        "unknown-function",
+        format!("unknown function `{func}`"),
+        e.span,
+        "not a function",
+    );
+    match super::suggest::nearest(func, FUNCTIONS.iter().copied()) {
+        Some(s) => d.with_hint(format!("did you mean `{s}`?")),
+        None => d.with_hint(format!("functions: {}", FUNCTIONS.join(" "))),
+    }
+}
+
+pub fn fmt_real(x: f64) -> String {
+    if x == x.trunc() && x.abs() < 1e15 {
+        format!("{}", x as i64)
+    } else {
+        format!("{x}")
+    }
+}
+
+/// Evaluates a quantity where a value of `want` kind is expected and returns
+/// it in the internal unit; `what` names the place ("the angle of RY").
+pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f64, Diagnostic> {
+    let v = eval(&q.expr, scope, false)?;
+    match q.unit {
+        None if !want.unit_optional() => Err(Diagnostic::error(
+            "missing-unit",
+            format!("{what} needs a unit"),
+            q.span,
+            format!("{} without a unit", want.describe()),
+        )
+        .with_hint(format!("write it with {}", want.units()))),
+        None => Ok(v.re),
+        Some((unit, uspan)) if !units::accepts(want, unit) => Err(Diagnostic::error(
+            "wrong-unit",
+            format!(
+                "{what} is {}, but `{}` measures {}",
+                want.describe(),
+                unit.as_str(),
+                units::kind_of(unit).describe()
+            ),
+            uspan,
+            format!(
+                "{} unit",
+                units::kind_of(unit)
+                    .describe()
+                    .trim_start_matches("a ")
+                    .trim_start_matches("an ")
+            ),
+        )
+        .with_label(q.expr.span, "this value")
+        .with_hint(format!("{what} takes {}", want.units()))),
+        Some((unit, _)) => Ok(v.re * units::scale(unit)),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::syntax::{self, ast::*};
+
+    fn value(text: &str) -> Result<Complex64, Diagnostic> {
+        let src =
+            crate::source::Source::new("t", format!("chip t {{ unitary on m = [[{text}]] }}"));
+        let ast = syntax::parse(&src).unwrap();
+        let Item::Chip(c) = &ast.items[0] else {
+            panic!()
+        };
+        let StmtKind::Unitary(u) = &c.body[0].kind else {
+            panic!()
+        };
+        let MatrixSource::Literal(m) = &u.source else {
+            panic!()
+        };
+        eval(&m.rows[0].entries[0], &Scope::default(), true)
+    }
+
+    fn close(text: &str, want: f64) {
+        let v = value(text).unwrap();
+        assert!(
+            (v.re - want).abs() < 1e-15 && v.im == 0.0,
+            "{text} = {v}, want {want}"
+        );
+    }
+
+    // Identities from any table of elementary functions (e.g. Abramowitz &
+    // Stegun, Handbook of Mathematical Functions, 1964, ch. 4).
+    #[test]
+    fn elementary_identities() {
+        close("sin(pi/6)", 0.5);
+        close("cos(pi/3)", 0.5);
+        close("atan(1)", std::f64::consts::FRAC_PI_4);
+        close("exp(ln(2))", 2.0);
+        close("sqrt(2)^2", 2.0);
+        close("asin(1)", std::f64::consts::FRAC_PI_2);
+        close("acos(-1)", std::f64::consts::PI);
+        close("tan(pi/4)", 1.0);
+        close("2^3^2", 512.0);
+        close("-2^2", -4.0);
+        close("2^-1", 0.5);
+        close("10 - 4 - 3", 3.0);
+        close("12 / 3 / 2", 2.0);
+    }
+
+    #[test]
+    fn complex_entries() {
+        let v = value("(1+i)/sqrt(2)").unwrap();
+        assert!((v.re - v.im).abs() < 1e-16 && (v.norm() - 1.0).abs() < 1e-15);
+        // e^{i pi} = -1 (Euler).
+        let v = value("exp(i*pi)").unwrap();
+        assert!((v.re + 1.0).abs() < 1e-15 && v.im.abs() < 1e-15);
+        assert_eq!(value("0.5+0.5i").unwrap(), Complex64::new(0.5, 0.5));
+    }
+
+    #[test]
+    fn failures_are_diagnostics() {
+        assert_eq!(value("1/0").unwrap_err().code, "division-by-zero");
+        assert_eq!(value("1e999").unwrap_err().code, "overflow");
+        assert_eq!(value("10^400").unwrap_err().code, "overflow");
+        assert_eq!(value("asin(2)").unwrap_err().code, "domain");
+        assert_eq!(value("ln(0)").unwrap_err().code, "domain");
+        assert_eq!(value("sqrt(-1)").unwrap_err().code, "domain");
+        assert_eq!(value("(-8)^(1/3)").unwrap_err().code, "domain");
+        assert_eq!(
+            value("sinn(1)").unwrap_err().hint.as_deref(),
+            Some("did you mean `sin`?")
+        );
+        assert_eq!(value("x").unwrap_err().code, "unknown-name");
+    }
+}

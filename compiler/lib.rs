@@ -1,0 +1,28 @@
+//! trilane: a compiler from dual-rail photonic quantum circuits to chips.
+//!
+//! The pipeline, one stage per folder, each a function from one typed value
+//! to the next:
+//!
+//! 1. `syntax::parse`     source text -> [`syntax::Ast`] (pest grammar, spans)
+//! 2. `circuit::elaborate` AST -> [`circuit::Circuit`] per chip (names,
+//!    units, definitions expanded), then `circuit::validate`
+//! 3. optics, process, cell, compile, layout and report stages follow the
+//!    front end as they land (see README.md for what works today).
+//!
+//! The core takes text and values and returns values; only `main.rs` touches
+//! the file system, and diagnostics are data until `diagnostic::render`.
+
+pub mod circuit;
+pub mod diagnostic;
+pub mod source;
+pub mod syntax;
+
+use circuit::{FileLoader, Program};
+use diagnostic::Diagnostics;
+use source::Source;
+
+/// The front end, whole: parse, elaborate, validate.
+pub fn check(source: &Source, files: &dyn FileLoader) -> Result<Program, Diagnostics> {
+    let ast = syntax::parse(source)?;
+    circuit::elaborate(&ast, files)
+}

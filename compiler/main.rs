@@ -1,0 +1,351 @@
+//! The `trilane` command line. Only argument handling and file access live
+//! here; everything else is in the library.
+
+use clap::{Parser, Subcommand};
+use serde::Serialize;
+use std::io::{IsTerminal, Write};
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use trilane::circuit::FileLoader;
+use trilane::diagnostic::{self, Diagnostic, Diagnostics, Style};
+use trilane::source::{self, Source, Span};
+
+/// trilane compiles dual-rail photonic quantum circuits into chips of
+/// fabrication-robust three-waveguide cells.
+///
+/// Exit codes: 0 success; 1 the input has errors (or a requirement fails);
+/// 2 usage error (bad options, unreadable file).
+#[derive(Parser)]
+#[command(
+    name = "trilane",
+    version,
+    about,
+    long_about,
+    after_help = "Start with: trilane check circuits/bell_pair.trl\nLanguage reference: docs/language.md"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Parse, elaborate and validate circuit files; report every problem
+    ///
+    /// All diagnostics of each file are printed to stderr (errors and
+    /// warnings, each with file, line, column and a hint where one exists);
+    /// a one-line summary per file goes to stdout. Exit 1 if any file has
+    /// an error.
+    Check {
+        /// Circuit files (.trl)
+        #[arg(required = true, value_name = "FILE")]
+        files: Vec<PathBuf>,
+        /// Print one JSON document on stdout instead of text (diagnostics included)
+        #[arg(long)]
+        json: bool,
+        /// Also print the elaborated circuit (the IR) of each chip
+        #[arg(long, conflicts_with = "json")]
+        ir: bool,
+    },
+    /// Rewrite circuit files in the canonical layout, keeping every comment
+    ///
+    /// Files are rewritten in place, atomically, and only when they change.
+    /// A file with syntax errors is reported and left untouched.
+    Fmt {
+        /// Circuit files (.trl)
+        #[arg(required = true, value_name = "FILE")]
+        files: Vec<PathBuf>,
+        /// Change nothing; list the files that are not formatted and exit 1 if any
+        #[arg(long)]
+        check: bool,
+        /// Print the formatted text to stdout instead of rewriting the file
+        #[arg(long, conflicts_with = "check")]
+        stdout: bool,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let code = match cli.command {
+        Command::Check { files, json, ir } => check(&files, json, ir),
+        Command::Fmt {
+            files,
+            check,
+            stdout,
+        } => fmt(&files, check, stdout),
+    };
+    ExitCode::from(code)
+}
+
+fn style() -> Style {
+    if std::io::stderr().is_terminal() && std::env::var_os("NO_COLOR").is_none() {
+        Style::Colour
+    } else {
+        Style::Plain
+    }
+}
+
+/// Reads matrix files relative to the circuit file's folder.
+struct FolderLoader {
+    dir: PathBuf,
+}
+
+impl FileLoader for FolderLoader {
+    fn load(&self, path: &str) -> Result<String, String> {
+        let full = self.dir.join(path);
+        let bytes =
+            std::fs::read(&full).map_err(|e| format!("{}: {}", full.display(), io_reason(&e)))?;
+        String::from_utf8(bytes).map_err(|_| format!("{}: not UTF-8 text", full.display()))
+    }
+}
+
+fn io_reason(e: &std::io::Error) -> String {
+    match e.kind() {
+        std::io::ErrorKind::NotFound => "no such file".into(),
+        std::io::ErrorKind::PermissionDenied => "permission denied".into(),
+        _ => e.to_string(),
+    }
+}
+
+/// Reads a circuit file; invalid UTF-8 becomes a diagnostic at the first bad byte.
+fn read_source(path: &Path) -> Result<(Source, Option<Diagnostic>), String> {
+    let bytes = std::fs::read(path)
+        .map_err(|e| format!("cannot read {}: {}", path.display(), io_reason(&e)))?;
+    let (text, bad) = source::decode(&bytes);
+    let src = Source::new(path.display().to_string(), text);
+    let diag = bad.map(|at| {
+        Diagnostic::error(
+            "encoding",
+            "the file is not valid UTF-8 text",
+            Span::new(at, at + 1),
+            "invalid byte here",
+        )
+        .with_hint("save the file as UTF-8; circuit files are plain text")
+    });
+    Ok((src, diag))
+}
+
+#[derive(Serialize)]
+struct JsonReport {
+    files: Vec<JsonFile>,
+}
+
+#[derive(Serialize)]
+struct JsonFile {
+    path: String,
+    ok: bool,
+    chips: Vec<String>,
+    diagnostics: Vec<JsonDiagnostic>,
+}
+
+#[derive(Serialize)]
+struct JsonDiagnostic {
+    severity: &'static str,
+    code: &'static str,
+    message: String,
+    line: usize,
+    column: usize,
+    end_line: usize,
+    end_column: usize,
+    label: String,
+    hint: Option<String>,
+}
+
+fn json_diag(d: &Diagnostic, src: &Source) -> JsonDiagnostic {
+    let sp = d.span();
+    let (line, column) = src.line_col(sp.start);
+    let (end_line, end_column) = src.line_col(sp.end);
+    JsonDiagnostic {
+        severity: d.severity.as_str(),
+        code: d.code,
+        message: d.message.clone(),
+        line,
+        column,
+        end_line,
+        end_column,
+        label: d.labels.first().map(|l| l.text.clone()).unwrap_or_default(),
+        hint: d.hint.clone(),
+    }
+}
+
+fn check(files: &[PathBuf], json: bool, ir: bool) -> u8 {
+    let style = style();
+    let mut worst = 0u8;
+    let mut report = JsonReport { files: Vec::new() };
+    let mut stdout = std::io::stdout().lock();
+    for path in files {
+        let (src, bad) = match read_source(path) {
+            Ok(x) => x,
+            Err(msg) => {
+                eprintln!("error: {msg}");
+                if json {
+                    report.files.push(JsonFile {
+                        path: path.display().to_string(),
+                        ok: false,
+                        chips: vec![],
+                        diagnostics: vec![],
+                    });
+                }
+                worst = 2;
+                continue;
+            }
+        };
+        let loader = FolderLoader {
+            dir: path.parent().map(Path::to_path_buf).unwrap_or_default(),
+        };
+        let (diags, program) = match bad {
+            Some(d) => (Diagnostics::from(d), None),
+            None => match trilane::check(&src, &loader) {
+                Ok(p) => (p.warnings.clone(), Some(p)),
+                Err(d) => (d, None),
+            },
+        };
+        let ok = !diags.has_errors();
+        if !ok {
+            worst = worst.max(1);
+        }
+        if json {
+            report.files.push(JsonFile {
+                path: src.name.clone(),
+                ok,
+                chips: program
+                    .iter()
+                    .flat_map(|p| p.circuits.iter().map(|c| c.name.clone()))
+                    .collect(),
+                diagnostics: diags.iter().map(|d| json_diag(d, &src)).collect(),
+            });
+            continue;
+        }
+        eprint!("{}", diagnostic::render_all(&diags, &src, style));
+        let warnings = diags.len() - diags.error_count();
+        let tail = if warnings > 0 {
+            format!(
+                ", {warnings} warning{}",
+                if warnings == 1 { "" } else { "s" }
+            )
+        } else {
+            String::new()
+        };
+        match &program {
+            Some(p) => {
+                let chips: Vec<String> = p
+                    .circuits
+                    .iter()
+                    .map(|c| {
+                        format!(
+                            "chip {}: {} qubit{}, {} mode{}, {} operation{}",
+                            c.name,
+                            c.qubits.len(),
+                            s(c.qubits.len()),
+                            c.modes.len(),
+                            s(c.modes.len()),
+                            c.ops.len(),
+                            s(c.ops.len())
+                        )
+                    })
+                    .collect();
+                let _ = writeln!(stdout, "{}: ok ({}){}", src.name, chips.join("; "), tail);
+                if ir {
+                    for c in &p.circuits {
+                        let _ = write!(stdout, "{c}");
+                    }
+                }
+            }
+            None => {
+                let n = diags.error_count();
+                let _ = writeln!(stdout, "{}: {} error{}{}", src.name, n, s(n), tail);
+            }
+        }
+    }
+    if json {
+        let _ = writeln!(
+            stdout,
+            "{}",
+            serde_json::to_string_pretty(&report).expect("report serialises")
+        );
+    }
+    worst
+}
+
+fn s(n: usize) -> &'static str {
+    if n == 1 { "" } else { "s" }
+}
+
+fn fmt(files: &[PathBuf], check: bool, to_stdout: bool) -> u8 {
+    let style = style();
+    let mut worst = 0u8;
+    let mut stdout = std::io::stdout().lock();
+    for path in files {
+        let (src, bad) = match read_source(path) {
+            Ok(x) => x,
+            Err(msg) => {
+                eprintln!("error: {msg}");
+                worst = 2;
+                continue;
+            }
+        };
+        if let Some(d) = bad {
+            eprint!("{}", diagnostic::render(&d, &src, style));
+            worst = worst.max(1);
+            continue;
+        }
+        let out = match trilane::syntax::format_source(&src) {
+            Ok(o) => o,
+            Err(d) => {
+                eprint!("{}", diagnostic::render_all(&d, &src, style));
+                eprintln!("{}: not formatted (fix the errors first)", src.name);
+                worst = worst.max(1);
+                continue;
+            }
+        };
+        if to_stdout {
+            let _ = stdout.write_all(out.as_bytes());
+            continue;
+        }
+        if out == src.text {
+            continue;
+        }
+        if check {
+            let _ = writeln!(stdout, "{}", src.name);
+            worst = worst.max(1);
+            continue;
+        }
+        match write_atomically(path, out.as_bytes()) {
+            Ok(()) => {
+                let _ = writeln!(stdout, "formatted {}", src.name);
+            }
+            Err(e) => {
+                eprintln!("error: cannot write {}: {}", path.display(), io_reason(&e));
+                worst = 2;
+            }
+        }
+    }
+    worst
+}
+
+/// Writes to a temporary file beside the target, then renames it over the
+/// target, so a reader never sees half a file.
+fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    let dir = path
+        .parent()
+        .filter(|d| !d.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let tmp = dir.join(format!(".{name}.trilane-tmp-{}", std::process::id()));
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        if let Ok(meta) = std::fs::metadata(path) {
+            std::fs::set_permissions(&tmp, meta.permissions())?;
+        }
+        std::fs::rename(&tmp, path)
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result
+}

@@ -1,0 +1,448 @@
+//! The canonical formatter.
+//!
+//! Prints an AST in one canonical layout: four-space indentation, one
+//! statement per line, `, ` between list items, spaces around `+ -` and
+//! comparisons, none around `* / ^`, minimal parentheses, units after a space
+//! (`30 deg`) except `%` (`90%`). Comments come back where they stood: a
+//! comment on its own line stays on its own line before the same statement;
+//! a comment after code stays at the end of that line; a comment inside a
+//! statement that is printed on one line moves to its own line just above
+//! it. One blank line between statements is kept where the source had one or
+//! more. Formatting is idempotent, and the output parses to the same AST up
+//! to spans (tests/format.rs checks both).
+
+use super::ast::*;
+use super::comments::{Comment, comments};
+
+const INDENT: &str = "    ";
+/// Lines longer than this are broken where the layout allows (matrices,
+/// tolerance blocks).
+pub const WIDTH: usize = 100;
+
+/// Formats a parsed file; `text` is the source it was parsed from.
+pub fn format(ast: &Ast, text: &str) -> String {
+    let mut p = Printer {
+        text,
+        comments: comments(text),
+        next: 0,
+        out: String::new(),
+        last_end: 0,
+    };
+    for (k, item) in ast.items.iter().enumerate() {
+        let start = item.span().start;
+        if k > 0 {
+            p.out.push('\n');
+        }
+        p.leading(start, 0, k > 0);
+        match item {
+            Item::Chip(c) => p.block(
+                &format!("chip {} {{", c.name.text),
+                c.header,
+                &c.body,
+                c.close,
+                0,
+            ),
+            Item::Define(d) => p.block(&define_header(d), d.header, &d.body, d.close, 0),
+        }
+    }
+    p.leading(usize::MAX, 0, !ast.items.is_empty());
+    let mut out = p.out;
+    while out.ends_with("\n\n") {
+        out.pop();
+    }
+    if out.is_empty() || !out.ends_with('\n') {
+        out.push('\n');
+    }
+    if out == "\n" { String::new() } else { out }
+}
+
+struct Printer<'t> {
+    text: &'t str,
+    comments: Vec<Comment>,
+    next: usize,
+    out: String,
+    last_end: usize,
+}
+
+impl Printer<'_> {
+    fn blank_before(&self, pos: usize) -> bool {
+        let end = pos.min(self.text.len());
+        self.last_end < end && self.text[self.last_end..end].matches('\n').count() >= 2
+    }
+
+    /// Own-line comments before `pos`; a blank line kept before each group.
+    fn leading(&mut self, pos: usize, depth: usize, allow_blank: bool) {
+        let mut first = true;
+        while self.next < self.comments.len() && self.comments[self.next].span.start < pos {
+            let c = self.comments[self.next].clone();
+            self.next += 1;
+            if (allow_blank || !first)
+                && self.blank_before(c.span.start)
+                && !self.out.ends_with("\n\n")
+                && !self.out.ends_with("{\n")
+            {
+                self.out.push('\n');
+            }
+            first = false;
+            self.line(depth, &c.text);
+            self.last_end = c.span.end;
+        }
+    }
+
+    /// The trailing comment on the line where `end` is, if any.
+    fn trailing(&mut self, end: usize) -> Option<String> {
+        let c = self.comments.get(self.next)?;
+        if c.span.start >= end && !self.text[end..c.span.start].contains('\n') {
+            let t = c.text.clone();
+            self.last_end = c.span.end;
+            self.next += 1;
+            Some(t)
+        } else {
+            None
+        }
+    }
+
+    fn line(&mut self, depth: usize, s: &str) {
+        for _ in 0..depth {
+            self.out.push_str(INDENT);
+        }
+        self.out.push_str(s);
+        self.out.push('\n');
+    }
+
+    /// Writes `lines` (the last one may get a trailing comment).
+    fn lines(&mut self, depth: usize, mut lines: Vec<String>, end: usize) {
+        self.last_end = end;
+        if let Some(t) = self.trailing(end) {
+            if let Some(last) = lines.last_mut() {
+                last.push(' ');
+                last.push_str(&t);
+            }
+        }
+        for (k, l) in lines.iter().enumerate() {
+            let extra = usize::from(k > 0 && k + 1 < lines.len());
+            self.line(depth + extra, l);
+        }
+    }
+
+    fn block(
+        &mut self,
+        header: &str,
+        header_span: crate::source::Span,
+        body: &[Stmt],
+        close: crate::source::Span,
+        depth: usize,
+    ) {
+        // Comments inside the header move above it.
+        self.leading(header_span.end.saturating_sub(1), depth, false);
+        self.last_end = header_span.end;
+        let mut h = header.to_owned();
+        if let Some(t) = self.trailing(header_span.end) {
+            h.push(' ');
+            h.push_str(&t);
+        }
+        self.line(depth, &h);
+        for s in body {
+            self.statement(s, depth + 1);
+        }
+        self.leading(close.start, depth + 1, true);
+        self.last_end = close.end;
+        let mut c = "}".to_owned();
+        if let Some(t) = self.trailing(close.end) {
+            c.push(' ');
+            c.push_str(&t);
+        }
+        self.line(depth, &c);
+    }
+
+    fn statement(&mut self, s: &Stmt, depth: usize) {
+        let blank = self.blank_before(
+            self.comments
+                .get(self.next)
+                .filter(|c| c.span.start < s.span.start)
+                .map_or(s.span.start, |c| c.span.start),
+        );
+        if blank && !self.out.ends_with("{\n") && !self.out.ends_with("\n\n") {
+            self.out.push('\n');
+        }
+        self.leading(s.span.start, depth, false);
+        match &s.kind {
+            StmtKind::Define(d) => self.block(&define_header(d), d.header, &d.body, d.close, depth),
+            StmtKind::Tolerance(entries) => {
+                let inner = self
+                    .comments
+                    .get(self.next)
+                    .is_some_and(|c| c.span.start < s.span.end);
+                let one = format!(
+                    "tolerance {{ {} }}",
+                    entries.iter().map(tol_entry).collect::<Vec<_>>().join(", ")
+                );
+                if !inner && one.len() + depth * INDENT.len() <= WIDTH && !entries.is_empty() {
+                    self.lines(depth, vec![one], s.span.end);
+                } else if entries.is_empty() && !inner {
+                    self.lines(depth, vec!["tolerance {}".into()], s.span.end);
+                } else {
+                    self.last_end = s.span.start;
+                    let mut h = "tolerance {".to_owned();
+                    if let Some(t) =
+                        self.trailing(s.span.start + "tolerance {".len().min(s.span.len()))
+                    {
+                        h.push(' ');
+                        h.push_str(&t);
+                    }
+                    self.line(depth, &h);
+                    for e in entries {
+                        self.leading(e.span.start, depth + 1, true);
+                        self.lines(depth + 1, vec![tol_entry(e)], e.span.end);
+                    }
+                    self.leading(s.span.end - 1, depth + 1, true);
+                    self.lines(depth, vec!["}".into()], s.span.end);
+                }
+            }
+            _ => {
+                // Comments inside a one-line statement go above it.
+                self.leading(s.span.end, depth, false);
+                let lines = statement_lines(&s.kind, depth);
+                self.lines(depth, lines, s.span.end);
+            }
+        }
+    }
+}
+
+fn define_header(d: &Define) -> String {
+    let params = match &d.params {
+        Some(p) if !p.is_empty() => format!(
+            "({})",
+            p.iter()
+                .map(|n| n.text.as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+        _ => String::new(),
+    };
+    let formals: Vec<&str> = d.formals.iter().map(|n| n.text.as_str()).collect();
+    format!(
+        "define {}{} on {} {{",
+        d.name.text,
+        params,
+        formals.join(", ")
+    )
+}
+
+fn tol_entry(e: &TolEntry) -> String {
+    format!("{} {}", e.key.text, quantity_text(&e.value))
+}
+
+fn names(n: &[Name]) -> String {
+    n.iter()
+        .map(|x| x.text.as_str())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+fn photons(c: &Count) -> String {
+    let one = c.text.trim_start_matches('0') == "1";
+    format!("{} {}", c.text, if one { "photon" } else { "photons" })
+}
+
+fn count_text(c: &Count) -> String {
+    c.text.clone()
+}
+
+pub fn operand_text(o: &Operand) -> String {
+    match &o.kind {
+        OperandKind::Name(n) => n.text.clone(),
+        OperandKind::Rail { qubit, index } => format!("{}.{}", qubit.text, index),
+        OperandKind::Range(a, b) => format!("{} ... {}", operand_text(a), operand_text(b)),
+    }
+}
+
+fn operands(o: &[Operand]) -> String {
+    o.iter().map(operand_text).collect::<Vec<_>>().join(", ")
+}
+
+fn statement_lines(k: &StmtKind, depth: usize) -> Vec<String> {
+    let one = match k {
+        StmtKind::Process(ProcessRef::Preset(n)) => format!("process {}", n.text),
+        StmtKind::Process(ProcessRef::File { path, .. }) => format!("process \"{path}\""),
+        StmtKind::Dualrail(n) => format!("dualrail {}", names(n)),
+        StmtKind::Mode(n) => format!("mode {}", names(n)),
+        StmtKind::Ancilla {
+            names: n,
+            photons: None,
+        } => format!("ancilla {}", names(n)),
+        StmtKind::Ancilla {
+            names: n,
+            photons: Some(c),
+        } => format!("ancilla {} = {}", names(n), photons(c)),
+        StmtKind::Launch(items) => {
+            let parts: Vec<String> = items
+                .iter()
+                .map(|it| match &it.value {
+                    LaunchValue::Ket { bits, .. } => format!("{} = |{bits}>", it.target.text),
+                    LaunchValue::Photons(c) => format!("{} = {}", it.target.text, photons(c)),
+                })
+                .collect();
+            format!("launch {}", parts.join(", "))
+        }
+        StmtKind::Apply(a) => {
+            let args = match &a.args {
+                Some(q) if !q.is_empty() => format!(
+                    "({})",
+                    q.iter().map(quantity_text).collect::<Vec<_>>().join(", ")
+                ),
+                _ => String::new(),
+            };
+            format!("{}{} on {}", a.callee.text, args, operands(&a.operands))
+        }
+        StmtKind::Unitary(u) => {
+            let head = format!("unitary on {}", operands(&u.operands));
+            match &u.source {
+                MatrixSource::File { path, .. } => format!("{head} from \"{path}\""),
+                MatrixSource::Literal(m) => {
+                    let rows: Vec<String> = m
+                        .rows
+                        .iter()
+                        .map(|r| {
+                            format!(
+                                "[{}]",
+                                r.entries
+                                    .iter()
+                                    .map(expr_text)
+                                    .collect::<Vec<_>>()
+                                    .join(", ")
+                            )
+                        })
+                        .collect();
+                    let one = format!("{head} = [{}]", rows.join(", "));
+                    if one.len() + depth * INDENT.len() <= WIDTH {
+                        one
+                    } else {
+                        let mut lines = vec![format!("{head} = [")];
+                        lines.extend(rows.into_iter().map(|r| format!("{r},")));
+                        lines.push("]".into());
+                        return lines;
+                    }
+                }
+            }
+        }
+        StmtKind::Herald(items) => {
+            let parts: Vec<String> = items
+                .iter()
+                .map(|h| format!("{} = {}", h.target.text, count_text(&h.count)))
+                .collect();
+            format!("herald {}", parts.join(", "))
+        }
+        StmtKind::Detect(o) => format!("detect {}", operands(o)),
+        StmtKind::Require(r) => {
+            let y = r
+                .yield_level
+                .as_ref()
+                .map(|q| format!(" at {} yield", quantity_text(q)))
+                .unwrap_or_default();
+            format!(
+                "require {} {} {}{}",
+                r.metric.text,
+                r.op.as_str(),
+                quantity_text(&r.value),
+                y
+            )
+        }
+        StmtKind::Band(b) => match &b.to {
+            None => format!("band {}", quantity_text(&b.from)),
+            Some((q, c)) => {
+                let n = count_text(c);
+                let one = n.trim_start_matches('0') == "1";
+                format!(
+                    "band {} to {} in {} {}",
+                    quantity_text(&b.from),
+                    quantity_text(q),
+                    n,
+                    if one { "step" } else { "steps" }
+                )
+            }
+        },
+        StmtKind::Tolerance(_) | StmtKind::Define(_) => {
+            unreachable!("blocks are printed by the printer")
+        }
+    };
+    vec![one]
+}
+
+/// A quantity as canonical text: `pi/3 rad`, `90%`.
+pub fn quantity_text(q: &Quantity) -> String {
+    let e = expr_text(&q.expr);
+    match q.unit {
+        None => e,
+        Some((Unit::Percent, _)) => format!("{e}%"),
+        Some((u, _)) => format!("{e} {}", u.as_str()),
+    }
+}
+
+/// Binding strength: what an operand needs to print without parentheses.
+fn prec(e: &Expr) -> u8 {
+    match &e.kind {
+        ExprKind::Binary {
+            op: BinOp::Add | BinOp::Sub,
+            ..
+        } => 1,
+        ExprKind::Binary {
+            op: BinOp::Mul | BinOp::Div,
+            ..
+        } => 2,
+        ExprKind::Neg(_) => 3,
+        ExprKind::Binary { op: BinOp::Pow, .. } => 4,
+        _ => 5,
+    }
+}
+
+fn wrap(e: &Expr, min: u8) -> String {
+    let s = expr_text(e);
+    if prec(e) < min { format!("({s})") } else { s }
+}
+
+pub fn expr_text(e: &Expr) -> String {
+    match &e.kind {
+        ExprKind::Number(t) => t.clone(),
+        ExprKind::Imaginary(t) => format!("{t}i"),
+        ExprKind::Name(n) => n.clone(),
+        ExprKind::Call { func, arg } => format!("{}({})", func.text, expr_text(arg)),
+        ExprKind::Neg(x) => format!("-{}", wrap(x, 3)),
+        ExprKind::Binary { op, lhs, rhs } => match op {
+            BinOp::Add | BinOp::Sub => format!("{} {} {}", wrap(lhs, 1), op.as_str(), wrap(rhs, 2)),
+            BinOp::Mul | BinOp::Div => format!("{}{}{}", wrap(lhs, 2), op.as_str(), wrap(rhs, 3)),
+            BinOp::Pow => format!("{}^{}", wrap(lhs, 5), wrap(rhs, 3)),
+        },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::source::Source;
+
+    fn fmt(text: &str) -> String {
+        let ast = crate::syntax::parse(&Source::new("t", text)).unwrap();
+        format(&ast, text)
+    }
+
+    #[test]
+    fn minimal_parentheses_keep_the_tree() {
+        assert_eq!(
+            fmt("chip a{RZ( (1-(2-3))*(-x)^2/(4*5) ) on q}"),
+            "chip a {\n    RZ((1 - (2 - 3))*(-x)^2/(4*5)) on q\n}\n"
+        );
+        assert_eq!(
+            fmt("chip a{RZ(2^(3^4)+(2^3)^4 + -(2*3)) on q}"),
+            "chip a {\n    RZ(2^3^4 + (2^3)^4 + -(2*3)) on q\n}\n"
+        );
+    }
+
+    #[test]
+    fn comments_stay_where_they_stand() {
+        let src = "// head\nchip a { // open\n  H on q // trail\n\n\n  // own line\n  X on q\n  // before close\n} // after\n// tail\n";
+        let want = "// head\nchip a { // open\n    H on q // trail\n\n    // own line\n    X on q\n    // before close\n} // after\n// tail\n";
+        assert_eq!(fmt(src), want);
+        assert_eq!(fmt(want), want);
+    }
+}
