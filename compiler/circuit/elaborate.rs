@@ -751,6 +751,17 @@ impl<'a> ChipElab<'a> {
                 None => ok = false,
             }
         }
+        // A name written as an operand is used, even where the operation fails.
+        for (t, _) in &out {
+            match *t {
+                Target::Qubit(q) => {
+                    self.used_qubits.insert(q);
+                }
+                Target::Mode(m) => {
+                    self.used.insert(m);
+                }
+            }
+        }
         if !ok {
             return None;
         }
