@@ -969,6 +969,9 @@ impl<'a> ChipElab<'a> {
             return;
         }
         self.unknown_callee(a, &calls);
+        // Still resolve the operands: undeclared names are reported too, and
+        // the qubits count as used.
+        let _ = self.operands(&a.operands, frame);
     }
 
     fn identity_warning(&self, written: &str, span: Span, calls: &[Span]) -> Diagnostic {
