@@ -161,7 +161,65 @@ impl From<Diagnostic> for Diagnostics {
 
 struct Rendered<'a> {
     diag: &'a Diagnostic,
-    source: miette::NamedSource<String>,
+    source: Windowed<'a>,
+}
+
+/// The source text as miette reads it, but cut to the lines around each
+/// span before miette scans it: miette walks its input from the first byte,
+/// which for a large file and many warnings costs seconds.
+struct Windowed<'a> {
+    name: &'a str,
+    text: &'a str,
+}
+
+impl miette::SourceCode for Windowed<'_> {
+    fn read_span<'b>(
+        &'b self,
+        span: &miette::SourceSpan,
+        before: usize,
+        after: usize,
+    ) -> Result<Box<dyn miette::SpanContents<'b> + 'b>, miette::MietteError> {
+        let bytes = self.text.as_bytes();
+        let start = span.offset().min(bytes.len());
+        let end = (span.offset() + span.len()).min(bytes.len());
+        // Back up `before` + 1 line starts, forward `after` + 1 line ends.
+        let mut lo = start;
+        for _ in 0..=before {
+            match bytes[..lo].iter().rposition(|&b| b == b'\n') {
+                Some(i) => lo = i,
+                None => {
+                    lo = 0;
+                    break;
+                }
+            }
+        }
+        if lo > 0 {
+            lo += 1;
+        }
+        let mut hi = end;
+        for _ in 0..=after {
+            match bytes[hi..].iter().position(|&b| b == b'\n') {
+                Some(i) => hi = hi + i + 1,
+                None => {
+                    hi = bytes.len();
+                    break;
+                }
+            }
+        }
+        let window = &bytes[lo..hi];
+        let lines_before = bytes[..lo].iter().filter(|&&b| b == b'\n').count();
+        let inner_span = miette::SourceSpan::from((start - lo, end - start));
+        let c = window.read_span(&inner_span, before, after)?;
+        let data_start = c.span().offset() + lo;
+        Ok(Box::new(miette::MietteSpanContents::new_named(
+            self.name.to_owned(),
+            c.data(),
+            miette::SourceSpan::from((data_start, c.span().len())),
+            c.line() + lines_before,
+            c.column(),
+            c.line_count(),
+        )))
+    }
 }
 
 impl fmt::Debug for Rendered<'_> {
@@ -202,7 +260,7 @@ impl miette::Diagnostic for Rendered<'_> {
     }
 
     fn labels(&self) -> Option<Box<dyn Iterator<Item = miette::LabeledSpan> + '_>> {
-        let len = self.source.inner().len();
+        let len = self.source.text.len();
         Some(Box::new(self.diag.labels.iter().enumerate().map(
             move |(i, l)| {
                 let start = l.span.start.min(len);
@@ -239,7 +297,7 @@ pub fn render(diag: &Diagnostic, source: &Source, style: Style) -> String {
         .with_links(false);
     let report = Rendered {
         diag,
-        source: miette::NamedSource::new(&source.name, source.text.clone()),
+        source: Windowed { name: &source.name, text: &source.text },
     };
     let mut out = String::new();
     if handler.render_report(&mut out, &report).is_err() {

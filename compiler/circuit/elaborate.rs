@@ -313,6 +313,7 @@ impl<'a> ChipElab<'a> {
         for s in body {
             self.statement(s);
         }
+        self.photon_budget();
         for (name, span) in local_names {
             if !self.used_defs.contains(&name) {
                 self.diags.push(Diagnostic::warning(
@@ -678,16 +679,19 @@ impl<'a> ChipElab<'a> {
                     ([Target::Mode(x)], [Target::Mode(y)]) if x <= y => {
                         Some((*x..=*y).map(Target::Mode).collect())
                     }
-                    ([Target::Mode(_)], [Target::Mode(_)]) => {
+                    ([Target::Qubit(x)], [Target::Qubit(y)]) if x <= y => {
+                        Some((*x..=*y).map(Target::Qubit).collect())
+                    }
+                    ([Target::Qubit(_)], [Target::Qubit(_)]) | ([Target::Mode(_)], [Target::Mode(_)]) => {
                         self.diags.push(
                             Diagnostic::error(
                                 "bad-range",
-                                "a mode range runs from the upper mode to the lower one",
+                                "a range runs from the upper mode or qubit to the lower one",
                                 op.span,
                                 "reversed range",
                             )
                             .with_hint(
-                                "write the first mode in chip order first, e.g. `m0 ... m7`",
+                                "write the one declared first, first, e.g. `m0 ... m7` or `a ... c`",
                             ),
                         );
                         None
@@ -696,7 +700,7 @@ impl<'a> ChipElab<'a> {
                         self.diags.push(
                             Diagnostic::error(
                                 "bad-range",
-                                "a range runs between two modes",
+                                "a range runs between two modes or between two qubits",
                                 op.span,
                                 "not a mode range",
                             )
@@ -892,7 +896,9 @@ impl<'a> ChipElab<'a> {
                 }
             }
             let gate = QubitGate::from_name(name, &angles).expect("spec names a gate");
-            if gates::is_identity_up_to_phase(&gate.matrix(), 1e-12) {
+            // `I` is written on purpose (an idle slot); an angle that makes
+            // a rotation trivial is more likely a slip.
+            if gate != QubitGate::I && gates::is_identity_up_to_phase(&gate.matrix(), 1e-12) {
                 self.diags
                     .push(self.identity_warning(&written(a), span, &calls));
             }
@@ -975,13 +981,14 @@ impl<'a> ChipElab<'a> {
     }
 
     fn identity_warning(&self, written: &str, span: Span, calls: &[Span]) -> Diagnostic {
+        let hint = if written.contains('(') { "remove it, or check its arguments" } else { "remove it, or check its entries" };
         let d = Diagnostic::warning(
             "identity",
             format!("`{written}` is the identity and does nothing"),
             span,
             "no effect",
         )
-        .with_hint("remove it, or check its angle");
+        .with_hint(hint);
         self.with_call_label(d, calls)
     }
 
@@ -1716,7 +1723,7 @@ impl<'a> ChipElab<'a> {
                 Ok(v) => {
                     let hint = if v > 20.0
                         && v <= 20_000.0
-                        && q.unit.map(|u| u.0) == Some(ast::Unit::Um)
+                        && matches!(q.expr.kind, ast::ExprKind::WithUnit { unit: ast::Unit::Um, .. })
                     {
                         "did you mean nm? optical wavelengths are written like `1550 nm`".to_owned()
                     } else {
@@ -1797,6 +1804,27 @@ impl<'a> ChipElab<'a> {
             steps,
             span,
         });
+    }
+
+    /// Linear optics conserves photon number and loss only removes photons:
+    /// one photon per qubit plus the heralded photons must all be launched.
+    fn photon_budget(&mut self) {
+        let Some(first) = self.circuit.heralds.first() else { return };
+        let launched: u64 = self.circuit.modes.iter().map(|m| u64::from(m.photons)).sum();
+        let heralded: u64 = self.circuit.heralds.iter().map(|h| u64::from(h.photons)).sum();
+        let needed = heralded + self.circuit.qubits.len() as u64;
+        if needed > launched {
+            let span = first.span.to(self.circuit.heralds.last().map_or(first.span, |h| h.span));
+            self.diags.push(
+                Diagnostic::error(
+                    "photon-count",
+                    format!("the heralds expect {heralded} photon{} and the qubits one each ({needed} in all), but the chip launches {launched}", plural(heralded as usize)),
+                    span,
+                    "cannot all be seen",
+                )
+                .with_hint("a linear network never adds photons: launch more (`ancilla h = 1 photon`) or herald fewer"),
+            );
+        }
     }
 
     fn unused_warnings(&mut self) {

@@ -9,6 +9,7 @@
 
 use super::units::{self, Kind};
 use crate::diagnostic::Diagnostic;
+use crate::source::Span;
 use crate::syntax::ast::{BinOp, Expr, ExprKind, Quantity};
 use num_complex::Complex64;
 use std::collections::BTreeMap;
@@ -24,17 +25,47 @@ pub const FUNCTIONS: [&str; 9] = [
     "sqrt", "sin", "cos", "tan", "asin", "acos", "atan", "exp", "ln",
 ];
 
-/// Evaluates an expression. `complex` allows `i` and imaginary literals.
+/// A value and the kind of quantity its units make it (`None`: a bare number).
+#[derive(Clone, Copy, Debug)]
+pub struct Value {
+    pub z: Complex64,
+    pub kind: Option<Kind>,
+    /// Where the (first) unit of the value was written.
+    pub unit_span: Option<Span>,
+}
+
+impl Value {
+    fn bare(z: Complex64) -> Value {
+        Value { z, kind: None, unit_span: None }
+    }
+}
+
+/// Evaluates a plain expression (matrix entries): no units. `complex`
+/// allows `i` and imaginary literals.
 pub fn eval(e: &Expr, scope: &Scope, complex: bool) -> Result<Complex64, Diagnostic> {
+    let v = eval_value(e, scope, complex)?;
+    if let (Some(k), Some(sp)) = (v.kind, v.unit_span) {
+        return Err(Diagnostic::error("wrong-unit", format!("a matrix entry is a plain number, not {}", k.describe()), sp, "a unit")
+            .with_hint("write the entries of a unitary without units"));
+    }
+    Ok(v.z)
+}
+
+fn kind_name(k: Option<Kind>) -> &'static str {
+    k.map_or("a plain number", Kind::describe)
+}
+
+/// Evaluates an expression whose terms may carry units.
+pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagnostic> {
     let v = match &e.kind {
-        ExprKind::Number(text) => real(parse_literal(text, e)?),
+        ExprKind::Number(text) => Value::bare(real(parse_literal(text, e)?)),
         ExprKind::Imaginary(text) => {
             if !complex {
                 return Err(not_here(e));
             }
-            Complex64::new(0.0, parse_literal(text, e)?)
+            Value::bare(Complex64::new(0.0, parse_literal(text, e)?))
         }
-        ExprKind::Name(n) => match n.as_str() {
+        ExprKind::Name(n) => Value::bare(match n.as_str() {
             "pi" => real(std::f64::consts::PI),
             "i" if complex => Complex64::new(0.0, 1.0),
             "i" => return Err(not_here(e)),
@@ -42,74 +73,116 @@ pub fn eval(e: &Expr, scope: &Scope, complex: bool) -> Result<Complex64, Diagnos
                 Some(v) => real(*v),
                 None => return Err(unknown_name(e, n, scope)),
             },
-        },
-        ExprKind::Neg(x) => -eval(x, scope, complex)?,
+        }),
+        ExprKind::WithUnit { value, unit, unit_span } => {
+            let v = eval_value(value, scope, complex)?;
+            if v.kind.is_some() {
+                return Err(Diagnostic::error("wrong-unit", "a unit follows a value that already has one", *unit_span, "second unit")
+                    .with_label(v.unit_span.unwrap_or(value.span), "first unit")
+                    .with_hint("write one unit per number, e.g. `30 deg`"));
+            }
+            Value { z: v.z * units::scale(*unit), kind: Some(units::kind_of(*unit)), unit_span: Some(*unit_span) }
+        }
+        ExprKind::Neg(x) => {
+            let v = eval_value(x, scope, complex)?;
+            Value { z: -v.z, ..v }
+        }
         ExprKind::Binary { op, lhs, rhs } => {
-            let a = eval(lhs, scope, complex)?;
-            let b = eval(rhs, scope, complex)?;
-            match op {
+            let a = eval_value(lhs, scope, complex)?;
+            let b = eval_value(rhs, scope, complex)?;
+            let kind = combine(*op, &a, &b, e, lhs, rhs)?;
+            let unit_span = a.unit_span.or(b.unit_span);
+            let (a, b) = (a.z, b.z);
+            let z = match op {
                 BinOp::Add => a + b,
                 BinOp::Sub => a - b,
                 BinOp::Mul => a * b,
                 BinOp::Div => {
                     if b == Complex64::new(0.0, 0.0) {
-                        return Err(Diagnostic::error(
-                            "division-by-zero",
-                            "division by zero",
-                            rhs.span,
-                            "this is zero",
-                        )
-                        .with_label(e.span, "in this quotient"));
+                        return Err(Diagnostic::error("division-by-zero", "division by zero", rhs.span, "this is zero")
+                            .with_label(e.span, "in this quotient"));
                     }
-                    if is_real(a) && is_real(b) {
-                        real(a.re / b.re)
-                    } else {
-                        a / b
-                    }
+                    if is_real(a) && is_real(b) { real(a.re / b.re) } else { a / b }
                 }
                 BinOp::Pow => {
                     if is_real(a) && is_real(b) {
                         if a.re < 0.0 && b.re.fract() != 0.0 {
                             return Err(Diagnostic::error(
                                 "domain",
-                                format!(
-                                    "a negative number to a fractional power ({} ^ {}) is not real",
-                                    a.re, b.re
-                                ),
+                                format!("a negative number to a fractional power ({} ^ {}) is not real", a.re, b.re),
                                 e.span,
                                 "not a real number",
                             ));
                         }
                         if a.re == 0.0 && b.re < 0.0 {
-                            return Err(Diagnostic::error(
-                                "division-by-zero",
-                                "zero to a negative power",
-                                e.span,
-                                "divides by zero",
-                            ));
+                            return Err(Diagnostic::error("division-by-zero", "zero to a negative power", e.span, "divides by zero"));
                         }
                         real(a.re.powf(b.re))
                     } else {
                         a.powc(b)
                     }
                 }
-            }
+            };
+            Value { z, kind, unit_span: if kind.is_some() { unit_span } else { None } }
         }
         ExprKind::Call { func, arg } => {
-            let x = eval(arg, scope, complex)?;
-            call(&func.text, x, e, arg)?
+            let x = eval_value(arg, scope, complex)?;
+            match x.kind {
+                None => {}
+                Some(Kind::Angle) if matches!(func.text.as_str(), "sin" | "cos" | "tan") => {}
+                Some(k) => {
+                    return Err(Diagnostic::error("wrong-unit", format!("{}() takes a plain number, not {}", func.text, k.describe()), x.unit_span.unwrap_or(arg.span), "has a unit")
+                        .with_hint("only sin, cos and tan take an angle with a unit; other functions take plain numbers"));
+                }
+            }
+            Value::bare(call(&func.text, x.z, e, arg)?)
         }
     };
-    if !v.re.is_finite() || !v.im.is_finite() {
-        return Err(Diagnostic::error(
-            "overflow",
-            "the value is too large for a double-precision number",
-            e.span,
-            "overflows",
-        )
-        .with_hint("values beyond about 1.8e308 cannot be represented"));
+    if !v.z.re.is_finite() || !v.z.im.is_finite() {
+        return Err(Diagnostic::error("overflow", "the value is too large for a double-precision number", e.span, "overflows")
+            .with_hint("values beyond about 1.8e308 cannot be represented"));
     }
     Ok(v)
+}
+
+/// The kind of `a op b`: sums need one kind (a bare number counts as
+/// radians or as a fraction beside an angle or a fraction); a product may
+/// have one factor with a unit; a ratio of one kind is a plain number.
+fn combine(op: BinOp, a: &Value, b: &Value, e: &Expr, lhs: &Expr, rhs: &Expr) -> Result<Option<Kind>, Diagnostic> {
+    let mismatch = |msg: String, hint: &str| {
+        Err(Diagnostic::error("wrong-unit", msg, e.span, "units do not combine")
+            .with_label(lhs.span, kind_name(a.kind))
+            .with_label(rhs.span, kind_name(b.kind))
+            .with_hint(hint.to_owned()))
+    };
+    match op {
+        BinOp::Add | BinOp::Sub => match (a.kind, b.kind) {
+            (x, y) if x == y => Ok(x),
+            (None, Some(k)) | (Some(k), None) if k.unit_optional() => Ok(Some(k)),
+            (None, Some(k)) | (Some(k), None) => Err(Diagnostic::error(
+                "missing-unit",
+                format!("every term of {} needs a unit", k.describe()),
+                if a.kind.is_none() { lhs.span } else { rhs.span },
+                "no unit",
+            )
+            .with_hint(format!("write a unit on each term, e.g. `1 mm + 20 um`, or scale the sum: `(2 + 3) nm`; {} takes {}", k.describe(), k.units()))),
+            (None, None) => Ok(None),
+            (Some(x), Some(y)) => mismatch(format!("cannot add {} and {}", x.describe(), y.describe()), "terms of a sum measure the same kind of quantity"),
+        },
+        BinOp::Mul => match (a.kind, b.kind) {
+            (None, k) | (k, None) => Ok(k),
+            _ => mismatch("cannot multiply two quantities that both have units".into(), "a unit goes on one factor: `2*15 deg`"),
+        },
+        BinOp::Div => match (a.kind, b.kind) {
+            (k, None) => Ok(k),
+            (Some(x), Some(y)) if x == y => Ok(None),
+            _ => mismatch("cannot divide by a quantity with a unit".into(), "write the unit on the result: `(pi/3) rad`, `6/2 mm`"),
+        },
+        BinOp::Pow => match (a.kind, b.kind) {
+            (None, None) => Ok(None),
+            _ => mismatch("powers take plain numbers".into(), "raise the number to the power, then write its unit: `10^3 nm`"),
+        },
+    }
 }
 
 fn real(x: f64) -> Complex64 {
@@ -232,8 +305,8 @@ pub fn fmt_real(x: f64) -> String {
 /// Evaluates a quantity where a value of `want` kind is expected and returns
 /// it in the internal unit; `what` names the place ("the angle of RY").
 pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f64, Diagnostic> {
-    let v = eval(&q.expr, scope, false)?;
-    match q.unit {
+    let v = eval_value(&q.expr, scope, false)?;
+    match v.kind {
         None if !want.unit_optional() => Err(Diagnostic::error(
             "missing-unit",
             format!("{what} needs a unit"),
@@ -241,27 +314,16 @@ pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f
             format!("{} without a unit", want.describe()),
         )
         .with_hint(format!("write it with {}", want.units()))),
-        None => Ok(v.re),
-        Some((unit, uspan)) if !units::accepts(want, unit) => Err(Diagnostic::error(
+        None => Ok(v.z.re),
+        Some(k) if !units::accepts(want, k) => Err(Diagnostic::error(
             "wrong-unit",
-            format!(
-                "{what} is {}, but `{}` measures {}",
-                want.describe(),
-                unit.as_str(),
-                units::kind_of(unit).describe()
-            ),
-            uspan,
-            format!(
-                "{} unit",
-                units::kind_of(unit)
-                    .describe()
-                    .trim_start_matches("a ")
-                    .trim_start_matches("an ")
-            ),
+            format!("{what} is {}, not {}", want.describe(), k.describe()),
+            v.unit_span.unwrap_or(q.span),
+            format!("{} unit", k.describe().trim_start_matches("a ").trim_start_matches("an ")),
         )
-        .with_label(q.expr.span, "this value")
+        .with_label(q.span, "this value")
         .with_hint(format!("{what} takes {}", want.units()))),
-        Some((unit, _)) => Ok(v.re * units::scale(unit)),
+        Some(_) => Ok(v.z.re),
     }
 }
 
@@ -337,5 +399,34 @@ mod tests {
             Some("did you mean `sin`?")
         );
         assert_eq!(value("x").unwrap_err().code, "unknown-name");
+    }
+
+    fn qty(text: &str, want: Kind) -> Result<f64, Diagnostic> {
+        let src = crate::source::Source::new("t", format!("chip t {{ G({text}) on q }}"));
+        let ast = syntax::parse(&src).unwrap();
+        let Item::Chip(c) = &ast.items[0] else { panic!() };
+        let StmtKind::Apply(a) = &c.body[0].kind else { panic!() };
+        quantity(&a.args.as_ref().unwrap()[0], want, &Scope::default(), "it")
+    }
+
+    // Units attach to the product before them; sums of terms with units add
+    // in the internal unit (SI prefixes; 180 deg = pi rad).
+    #[test]
+    fn units_bind_to_their_term() {
+        let pi = std::f64::consts::PI;
+        assert!((qty("pi/2 + 30 deg", Kind::Angle).unwrap() - 2.0 * pi / 3.0).abs() < 1e-15);
+        assert!((qty("(pi/2 + 30) deg", Kind::Angle).unwrap() - (pi / 2.0 + 30.0) * pi / 180.0).abs() < 1e-15);
+        assert!((qty("1 mm + 20 um", Kind::Length).unwrap() - 1020.0).abs() < 1e-12);
+        assert!((qty("1/4 + 10%", Kind::Fraction).unwrap() - 0.35).abs() < 1e-15);
+        assert!((qty("2*15 deg", Kind::Angle).unwrap() - pi / 6.0).abs() < 1e-15);
+        assert!((qty("-(30 deg)*2", Kind::Angle).unwrap() + pi / 3.0).abs() < 1e-15);
+        assert!((qty("asin(sin(30 deg))", Kind::Angle).unwrap() - pi / 6.0).abs() < 1e-15);
+        assert!((qty("(3 mm)/(1 um)", Kind::Number).unwrap() - 3000.0).abs() < 1e-9);
+        assert_eq!(qty("2 + 3 nm", Kind::Length).unwrap_err().code, "missing-unit");
+        assert_eq!(qty("1 mm + 3 deg", Kind::Length).unwrap_err().code, "wrong-unit");
+        assert_eq!(qty("(2 nm)*(3 nm)", Kind::Length).unwrap_err().code, "wrong-unit");
+        assert_eq!(qty("3 nm", Kind::Angle).unwrap_err().code, "wrong-unit");
+        assert_eq!(qty("3", Kind::Length).unwrap_err().code, "missing-unit");
+        assert_eq!(qty("sqrt(4 nm)", Kind::Length).unwrap_err().code, "wrong-unit");
     }
 }

@@ -76,8 +76,8 @@ impl fmt::Display for Circuit {
                     "rotate({}, {}) on {} {}",
                     num(*theta_rad),
                     num(*phi_rad),
-                    modes[0],
-                    modes[1]
+                    self.modes[modes[0]].name,
+                    self.modes[modes[1]].name
                 )?,
                 OpKind::Split {
                     cross_fraction,
@@ -86,14 +86,14 @@ impl fmt::Display for Circuit {
                     line,
                     "split({}) on {} {}",
                     num(*cross_fraction),
-                    modes[0],
-                    modes[1]
+                    self.modes[modes[0]].name,
+                    self.modes[modes[1]].name
                 )?,
                 OpKind::Phase { phase_rad, mode } => {
-                    write!(line, "phase({}) on {mode}", num(*phase_rad))?
+                    write!(line, "phase({}) on {}", num(*phase_rad), self.modes[*mode].name)?
                 }
                 OpKind::Unitary { modes, matrix } => {
-                    let ms: Vec<String> = modes.iter().map(|m| m.to_string()).collect();
+                    let ms: Vec<&str> = modes.iter().map(|&m| self.modes[m].name.as_str()).collect();
                     let rows: Vec<String> = (0..matrix.nrows())
                         .map(|i| {
                             let r: Vec<String> = (0..matrix.ncols())
@@ -155,10 +155,11 @@ impl fmt::Display for Circuit {
         if let Some(b) = &self.band {
             writeln!(
                 f,
-                "  band {} um to {} um in {} steps",
+                "  band {} um to {} um in {} step{}",
                 num(b.start_um),
                 num(b.stop_um),
-                b.steps
+                b.steps,
+                if b.steps == 1 { "" } else { "s" }
             )?;
         }
         Ok(())

@@ -83,9 +83,8 @@ pub fn scale(unit: Unit) -> f64 {
     }
 }
 
-/// Whether a value written with `unit` may stand where `want` is expected.
-pub fn accepts(want: Kind, unit: Unit) -> bool {
-    let k = kind_of(unit);
+/// Whether a value of kind `k` may stand where `want` is expected.
+pub fn accepts(want: Kind, k: Kind) -> bool {
     k == want || (want == Kind::Number && matches!(k, Kind::Angle | Kind::Fraction))
 }
 
@@ -101,7 +100,7 @@ mod tests {
         assert_eq!(scale(Unit::Nm), 1e-3);
         // 180 deg = pi rad.
         assert!((180.0 * scale(Unit::Deg) - std::f64::consts::PI).abs() < 1e-15);
-        assert!(accepts(Kind::Number, Unit::Deg));
-        assert!(!accepts(Kind::Angle, Unit::Nm));
+        assert!(accepts(Kind::Number, kind_of(Unit::Deg)));
+        assert!(!accepts(Kind::Angle, kind_of(Unit::Nm)));
     }
 }

@@ -267,11 +267,11 @@ impl Unit {
     }
 }
 
-/// An expression with an optional unit that scales all of it.
+/// A value as written where a number with a unit is expected: an
+/// expression whose terms may carry units (`pi/2 + 30 deg`).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Quantity {
     pub expr: Expr,
-    pub unit: Option<(Unit, Span)>,
     pub span: Span,
 }
 
@@ -319,6 +319,12 @@ pub enum ExprKind {
         op: BinOp,
         lhs: Box<Expr>,
         rhs: Box<Expr>,
+    },
+    /// A product followed by a unit: `pi/3 rad`, `30 deg`, `90%`.
+    WithUnit {
+        value: Box<Expr>,
+        unit: Unit,
+        unit_span: Span,
     },
 }
 
@@ -506,9 +512,6 @@ impl ClearSpans for Operand {
 impl ClearSpans for Quantity {
     fn clear_spans(&mut self) {
         self.expr.clear_spans();
-        if let Some((_, s)) = &mut self.unit {
-            s.clear_spans();
-        }
         self.span.clear_spans();
     }
 }
@@ -525,6 +528,12 @@ impl ClearSpans for Expr {
             ExprKind::Binary { lhs, rhs, .. } => {
                 lhs.clear_spans();
                 rhs.clear_spans();
+            }
+            ExprKind::WithUnit {
+                value, unit_span, ..
+            } => {
+                value.clear_spans();
+                unit_span.clear_spans();
             }
             _ => {}
         }

@@ -15,6 +15,8 @@ use super::ast::*;
 use super::comments::{Comment, comments};
 
 const INDENT: &str = "    ";
+/// Marks where code ends and a trailing comment begins, until alignment.
+const MARK: char = '\u{1}';
 /// Lines longer than this are broken where the layout allows (matrices,
 /// tolerance blocks).
 pub const WIDTH: usize = 100;
@@ -46,7 +48,7 @@ pub fn format(ast: &Ast, text: &str) -> String {
         }
     }
     p.leading(usize::MAX, 0, !ast.items.is_empty());
-    let mut out = p.out;
+    let mut out = align_trailing_comments(&p.out);
     while out.ends_with("\n\n") {
         out.pop();
     }
@@ -93,7 +95,7 @@ impl Printer<'_> {
     fn trailing(&mut self, end: usize) -> Option<String> {
         let c = self.comments.get(self.next)?;
         if c.span.start >= end && !self.text[end..c.span.start].contains('\n') {
-            let t = c.text.clone();
+            let t = format!("{MARK}{}", c.text);
             self.last_end = c.span.end;
             self.next += 1;
             Some(t)
@@ -119,9 +121,8 @@ impl Printer<'_> {
                 last.push_str(&t);
             }
         }
-        for (k, l) in lines.iter().enumerate() {
-            let extra = usize::from(k > 0 && k + 1 < lines.len());
-            self.line(depth + extra, l);
+        for l in &lines {
+            self.line(depth, l);
         }
     }
 
@@ -199,6 +200,25 @@ impl Printer<'_> {
                     self.lines(depth, vec!["}".into()], s.span.end);
                 }
             }
+            StmtKind::Unitary(UnitaryStmt { operands: ops, source: MatrixSource::Literal(m) }) => {
+                let inner = self.comments.get(self.next).is_some_and(|c| c.span.start < s.span.end);
+                let head = format!("unitary on {} = [", operands(ops));
+                let rows: Vec<String> = m.rows.iter().map(row_text).collect();
+                let one = format!("{head}{}]", rows.join(", "));
+                if !inner && m.rows.len() < 3 && one.len() + depth * INDENT.len() <= WIDTH {
+                    self.lines(depth, vec![one], s.span.end);
+                } else {
+                    // One row per line; comments stay with their rows.
+                    self.leading(m.span.start, depth, false);
+                    self.lines(depth, vec![head], m.span.start + 1);
+                    for (r, text) in m.rows.iter().zip(rows) {
+                        self.leading(r.span.start, depth + 1, true);
+                        self.lines(depth + 1, vec![format!("{text},")], r.span.end);
+                    }
+                    self.leading(s.span.end.saturating_sub(1), depth + 1, true);
+                    self.lines(depth, vec!["]".into()], s.span.end);
+                }
+            }
             _ => {
                 // Comments inside a one-line statement go above it.
                 self.leading(s.span.end, depth, false);
@@ -207,6 +227,45 @@ impl Printer<'_> {
             }
         }
     }
+}
+
+fn row_text(r: &MatrixRow) -> String {
+    format!("[{}]", r.entries.iter().map(expr_text).collect::<Vec<_>>().join(", "))
+}
+
+/// Aligns the trailing comments of consecutive lines one space past the
+/// longest code among them; a line without one, or at another
+/// indentation, ends the run.
+fn align_trailing_comments(text: &str) -> String {
+    let lines: Vec<&str> = text.split('\n').collect();
+    let mut out: Vec<String> = Vec::with_capacity(lines.len());
+    let mut k = 0;
+    while k < lines.len() {
+        if !lines[k].contains(MARK) {
+            out.push(lines[k].to_owned());
+            k += 1;
+            continue;
+        }
+        let indent = |l: &str| l.len() - l.trim_start_matches(' ').len();
+        let mut end = k;
+        while end < lines.len() && lines[end].contains(MARK) && indent(lines[end]) == indent(lines[k]) {
+            end += 1;
+        }
+        let split: Vec<(&str, &str)> = lines[k..end]
+            .iter()
+            .map(|l| {
+                let (code, comment) = l.split_once(MARK).expect("marked");
+                (code.trim_end(), comment)
+            })
+            .collect();
+        let width = split.iter().map(|(c, _)| c.chars().count()).max().unwrap_or(0);
+        for (code, comment) in split {
+            let pad = width - code.chars().count() + 1;
+            out.push(format!("{code}{}{comment}", " ".repeat(pad)));
+        }
+        k = end;
+    }
+    out.join("\n")
 }
 
 fn define_header(d: &Define) -> String {
@@ -314,15 +373,8 @@ fn statement_lines(k: &StmtKind, depth: usize) -> Vec<String> {
                             )
                         })
                         .collect();
-                    let one = format!("{head} = [{}]", rows.join(", "));
-                    if one.len() + depth * INDENT.len() <= WIDTH {
-                        one
-                    } else {
-                        let mut lines = vec![format!("{head} = [")];
-                        lines.extend(rows.into_iter().map(|r| format!("{r},")));
-                        lines.push("]".into());
-                        return lines;
-                    }
+                    let _ = depth;
+                    format!("{head} = [{}]", rows.join(", "))
                 }
             }
         }
@@ -371,28 +423,18 @@ fn statement_lines(k: &StmtKind, depth: usize) -> Vec<String> {
 
 /// A quantity as canonical text: `pi/3 rad`, `90%`.
 pub fn quantity_text(q: &Quantity) -> String {
-    let e = expr_text(&q.expr);
-    match q.unit {
-        None => e,
-        Some((Unit::Percent, _)) => format!("{e}%"),
-        Some((u, _)) => format!("{e} {}", u.as_str()),
-    }
+    expr_text(&q.expr)
 }
 
 /// Binding strength: what an operand needs to print without parentheses.
 fn prec(e: &Expr) -> u8 {
     match &e.kind {
-        ExprKind::Binary {
-            op: BinOp::Add | BinOp::Sub,
-            ..
-        } => 1,
-        ExprKind::Binary {
-            op: BinOp::Mul | BinOp::Div,
-            ..
-        } => 2,
-        ExprKind::Neg(_) => 3,
-        ExprKind::Binary { op: BinOp::Pow, .. } => 4,
-        _ => 5,
+        ExprKind::Binary { op: BinOp::Add | BinOp::Sub, .. } => 1,
+        ExprKind::WithUnit { .. } => 2,
+        ExprKind::Binary { op: BinOp::Mul | BinOp::Div, .. } => 3,
+        ExprKind::Neg(_) => 4,
+        ExprKind::Binary { op: BinOp::Pow, .. } => 5,
+        _ => 6,
     }
 }
 
@@ -401,17 +443,32 @@ fn wrap(e: &Expr, min: u8) -> String {
     if prec(e) < min { format!("({s})") } else { s }
 }
 
+/// `0.5+0.5i`, `-1-2i`: a complex literal prints without spaces.
+fn is_complex_literal(lhs: &Expr, rhs: &Expr) -> bool {
+    let real = match &lhs.kind {
+        ExprKind::Number(_) => true,
+        ExprKind::Neg(x) => matches!(x.kind, ExprKind::Number(_)),
+        _ => false,
+    };
+    real && matches!(rhs.kind, ExprKind::Imaginary(_))
+}
+
 pub fn expr_text(e: &Expr) -> String {
     match &e.kind {
         ExprKind::Number(t) => t.clone(),
         ExprKind::Imaginary(t) => format!("{t}i"),
         ExprKind::Name(n) => n.clone(),
         ExprKind::Call { func, arg } => format!("{}({})", func.text, expr_text(arg)),
-        ExprKind::Neg(x) => format!("-{}", wrap(x, 3)),
+        ExprKind::Neg(x) => format!("-{}", wrap(x, 4)),
+        ExprKind::WithUnit { value, unit, .. } => match unit {
+            Unit::Percent => format!("{}%", wrap(value, 3)),
+            u => format!("{} {}", wrap(value, 3), u.as_str()),
+        },
         ExprKind::Binary { op, lhs, rhs } => match op {
+            BinOp::Add | BinOp::Sub if is_complex_literal(lhs, rhs) => format!("{}{}{}", expr_text(lhs), op.as_str(), expr_text(rhs)),
             BinOp::Add | BinOp::Sub => format!("{} {} {}", wrap(lhs, 1), op.as_str(), wrap(rhs, 2)),
-            BinOp::Mul | BinOp::Div => format!("{}{}{}", wrap(lhs, 2), op.as_str(), wrap(rhs, 3)),
-            BinOp::Pow => format!("{}^{}", wrap(lhs, 5), wrap(rhs, 3)),
+            BinOp::Mul | BinOp::Div => format!("{}{}{}", wrap(lhs, 3), op.as_str(), wrap(rhs, 4)),
+            BinOp::Pow => format!("{}^{}", wrap(lhs, 6), wrap(rhs, 4)),
         },
     }
 }

@@ -356,13 +356,7 @@ impl<'t> Builder<'t> {
         let span = span_of(&pair);
         let mut inner = pair.into_inner();
         let expr = self.expr(inner.next().unwrap())?;
-        let unit = inner.next().map(|u| {
-            (
-                Unit::parse(u.as_str()).expect("grammar lists the units"),
-                span_of(&u),
-            )
-        });
-        Some(Quantity { expr, unit, span })
+        Some(Quantity { expr, span })
     }
 
     /// Builds an expression; `None` (with a diagnostic) when it is too large.
@@ -409,6 +403,14 @@ impl<'t> Builder<'t> {
         let mut inner = pair.into_inner();
         let mut acc = self.factor(inner.next().unwrap());
         while let Some(op) = inner.next() {
+            if op.as_rule() == Rule::unit {
+                let unit_span = span_of(&op);
+                let unit = Unit::parse(op.as_str()).expect("grammar lists the units");
+                let span = acc.span.to(unit_span);
+                acc = Expr { kind: ExprKind::WithUnit { value: Box::new(acc), unit, unit_span }, span };
+                self.bump();
+                break;
+            }
             let rhs = self.factor(inner.next().unwrap());
             let op = if op.as_str() == "*" {
                 BinOp::Mul
