@@ -138,9 +138,14 @@ impl Printer<'_> {
         self.leading(header_span.end.saturating_sub(1), depth, false);
         self.last_end = header_span.end;
         let mut h = header.to_owned();
-        if let Some(t) = self.trailing(header_span.end) {
-            h.push(' ');
-            h.push_str(&t);
+        // A comment after `{` is the header's only if no statement stands
+        // between them on that line.
+        let first = body.first().map_or(close.start, |s| s.span.start);
+        if self.comments.get(self.next).is_some_and(|c| c.span.start < first) {
+            if let Some(t) = self.trailing(header_span.end) {
+                h.push(' ');
+                h.push_str(&t);
+            }
         }
         self.line(depth, &h);
         for s in body {
