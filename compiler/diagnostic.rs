@@ -297,7 +297,10 @@ pub fn render(diag: &Diagnostic, source: &Source, style: Style) -> String {
         .with_links(false);
     let report = Rendered {
         diag,
-        source: Windowed { name: &source.name, text: &source.text },
+        source: Windowed {
+            name: &source.name,
+            text: &source.text,
+        },
     };
     let mut out = String::new();
     if handler.render_report(&mut out, &report).is_err() {

@@ -478,22 +478,18 @@ impl<'a> ChipElab<'a> {
 
     fn statement(&mut self, s: &'a Stmt) {
         let is_op = matches!(s.kind, StmtKind::Apply(_) | StmtKind::Unitary(_));
-        if is_op {
-            if let Some(d) = self.detect_span {
-                self.diags.push(
-                    Diagnostic::error(
-                        "after-detect",
-                        "an operation follows `detect`",
-                        s.span,
-                        "after detection",
-                    )
-                    .with_label(d, "the outputs are detected here")
-                    .with_hint(
-                        "`detect` describes the chip's outputs: move it after the last gate",
-                    ),
-                );
-                return;
-            }
+        if is_op && let Some(d) = self.detect_span {
+            self.diags.push(
+                Diagnostic::error(
+                    "after-detect",
+                    "an operation follows `detect`",
+                    s.span,
+                    "after detection",
+                )
+                .with_label(d, "the outputs are detected here")
+                .with_hint("`detect` describes the chip's outputs: move it after the last gate"),
+            );
+            return;
         }
         match &s.kind {
             StmtKind::Launch(items) => {
@@ -682,7 +678,8 @@ impl<'a> ChipElab<'a> {
                     ([Target::Qubit(x)], [Target::Qubit(y)]) if x <= y => {
                         Some((*x..=*y).map(Target::Qubit).collect())
                     }
-                    ([Target::Qubit(_)], [Target::Qubit(_)]) | ([Target::Mode(_)], [Target::Mode(_)]) => {
+                    ([Target::Qubit(_)], [Target::Qubit(_)])
+                    | ([Target::Mode(_)], [Target::Mode(_)]) => {
                         self.diags.push(
                             Diagnostic::error(
                                 "bad-range",
@@ -981,7 +978,11 @@ impl<'a> ChipElab<'a> {
     }
 
     fn identity_warning(&self, written: &str, span: Span, calls: &[Span]) -> Diagnostic {
-        let hint = if written.contains('(') { "remove it, or check its arguments" } else { "remove it, or check its entries" };
+        let hint = if written.contains('(') {
+            "remove it, or check its arguments"
+        } else {
+            "remove it, or check its entries"
+        };
         let d = Diagnostic::warning(
             "identity",
             format!("`{written}` is the identity and does nothing"),
@@ -1723,8 +1724,13 @@ impl<'a> ChipElab<'a> {
                 Ok(v) => {
                     let hint = if v > 20.0
                         && v <= 20_000.0
-                        && matches!(q.expr.kind, ast::ExprKind::WithUnit { unit: ast::Unit::Um, .. })
-                    {
+                        && matches!(
+                            q.expr.kind,
+                            ast::ExprKind::WithUnit {
+                                unit: ast::Unit::Um,
+                                ..
+                            }
+                        ) {
                         "did you mean nm? optical wavelengths are written like `1550 nm`".to_owned()
                     } else {
                         "optical wavelengths lie between 0.2 um and 20 um, e.g. `1550 nm`"
@@ -1809,12 +1815,26 @@ impl<'a> ChipElab<'a> {
     /// Linear optics conserves photon number and loss only removes photons:
     /// one photon per qubit plus the heralded photons must all be launched.
     fn photon_budget(&mut self) {
-        let Some(first) = self.circuit.heralds.first() else { return };
-        let launched: u64 = self.circuit.modes.iter().map(|m| u64::from(m.photons)).sum();
-        let heralded: u64 = self.circuit.heralds.iter().map(|h| u64::from(h.photons)).sum();
+        let Some(first) = self.circuit.heralds.first() else {
+            return;
+        };
+        let launched: u64 = self
+            .circuit
+            .modes
+            .iter()
+            .map(|m| u64::from(m.photons))
+            .sum();
+        let heralded: u64 = self
+            .circuit
+            .heralds
+            .iter()
+            .map(|h| u64::from(h.photons))
+            .sum();
         let needed = heralded + self.circuit.qubits.len() as u64;
         if needed > launched {
-            let span = first.span.to(self.circuit.heralds.last().map_or(first.span, |h| h.span));
+            let span = first
+                .span
+                .to(self.circuit.heralds.last().map_or(first.span, |h| h.span));
             self.diags.push(
                 Diagnostic::error(
                     "photon-count",

@@ -36,7 +36,11 @@ pub struct Value {
 
 impl Value {
     fn bare(z: Complex64) -> Value {
-        Value { z, kind: None, unit_span: None }
+        Value {
+            z,
+            kind: None,
+            unit_span: None,
+        }
     }
 }
 
@@ -45,8 +49,13 @@ impl Value {
 pub fn eval(e: &Expr, scope: &Scope, complex: bool) -> Result<Complex64, Diagnostic> {
     let v = eval_value(e, scope, complex)?;
     if let (Some(k), Some(sp)) = (v.kind, v.unit_span) {
-        return Err(Diagnostic::error("wrong-unit", format!("a matrix entry is a plain number, not {}", k.describe()), sp, "a unit")
-            .with_hint("write the entries of a unitary without units"));
+        return Err(Diagnostic::error(
+            "wrong-unit",
+            format!("a matrix entry is a plain number, not {}", k.describe()),
+            sp,
+            "a unit",
+        )
+        .with_hint("write the entries of a unitary without units"));
     }
     Ok(v.z)
 }
@@ -74,14 +83,27 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
                 None => return Err(unknown_name(e, n, scope)),
             },
         }),
-        ExprKind::WithUnit { value, unit, unit_span } => {
+        ExprKind::WithUnit {
+            value,
+            unit,
+            unit_span,
+        } => {
             let v = eval_value(value, scope, complex)?;
             if v.kind.is_some() {
-                return Err(Diagnostic::error("wrong-unit", "a unit follows a value that already has one", *unit_span, "second unit")
-                    .with_label(v.unit_span.unwrap_or(value.span), "first unit")
-                    .with_hint("write one unit per number, e.g. `30 deg`"));
+                return Err(Diagnostic::error(
+                    "wrong-unit",
+                    "a unit follows a value that already has one",
+                    *unit_span,
+                    "second unit",
+                )
+                .with_label(v.unit_span.unwrap_or(value.span), "first unit")
+                .with_hint("write one unit per number, e.g. `30 deg`"));
             }
-            Value { z: v.z * units::scale(*unit), kind: Some(units::kind_of(*unit)), unit_span: Some(*unit_span) }
+            Value {
+                z: v.z * units::scale(*unit),
+                kind: Some(units::kind_of(*unit)),
+                unit_span: Some(*unit_span),
+            }
         }
         ExprKind::Neg(x) => {
             let v = eval_value(x, scope, complex)?;
@@ -99,23 +121,40 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
                 BinOp::Mul => a * b,
                 BinOp::Div => {
                     if b == Complex64::new(0.0, 0.0) {
-                        return Err(Diagnostic::error("division-by-zero", "division by zero", rhs.span, "this is zero")
-                            .with_label(e.span, "in this quotient"));
+                        return Err(Diagnostic::error(
+                            "division-by-zero",
+                            "division by zero",
+                            rhs.span,
+                            "this is zero",
+                        )
+                        .with_label(e.span, "in this quotient"));
                     }
-                    if is_real(a) && is_real(b) { real(a.re / b.re) } else { a / b }
+                    if is_real(a) && is_real(b) {
+                        real(a.re / b.re)
+                    } else {
+                        a / b
+                    }
                 }
                 BinOp::Pow => {
                     if is_real(a) && is_real(b) {
                         if a.re < 0.0 && b.re.fract() != 0.0 {
                             return Err(Diagnostic::error(
                                 "domain",
-                                format!("a negative number to a fractional power ({} ^ {}) is not real", a.re, b.re),
+                                format!(
+                                    "a negative number to a fractional power ({} ^ {}) is not real",
+                                    a.re, b.re
+                                ),
                                 e.span,
                                 "not a real number",
                             ));
                         }
                         if a.re == 0.0 && b.re < 0.0 {
-                            return Err(Diagnostic::error("division-by-zero", "zero to a negative power", e.span, "divides by zero"));
+                            return Err(Diagnostic::error(
+                                "division-by-zero",
+                                "zero to a negative power",
+                                e.span,
+                                "divides by zero",
+                            ));
                         }
                         real(a.re.powf(b.re))
                     } else {
@@ -123,7 +162,11 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
                     }
                 }
             };
-            Value { z, kind, unit_span: if kind.is_some() { unit_span } else { None } }
+            Value {
+                z,
+                kind,
+                unit_span: if kind.is_some() { unit_span } else { None },
+            }
         }
         ExprKind::Call { func, arg } => {
             let x = eval_value(arg, scope, complex)?;
@@ -139,8 +182,13 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
         }
     };
     if !v.z.re.is_finite() || !v.z.im.is_finite() {
-        return Err(Diagnostic::error("overflow", "the value is too large for a double-precision number", e.span, "overflows")
-            .with_hint("values beyond about 1.8e308 cannot be represented"));
+        return Err(Diagnostic::error(
+            "overflow",
+            "the value is too large for a double-precision number",
+            e.span,
+            "overflows",
+        )
+        .with_hint("values beyond about 1.8e308 cannot be represented"));
     }
     Ok(v)
 }
@@ -148,12 +196,21 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
 /// The kind of `a op b`: sums need one kind (a bare number counts as
 /// radians or as a fraction beside an angle or a fraction); a product may
 /// have one factor with a unit; a ratio of one kind is a plain number.
-fn combine(op: BinOp, a: &Value, b: &Value, e: &Expr, lhs: &Expr, rhs: &Expr) -> Result<Option<Kind>, Diagnostic> {
+fn combine(
+    op: BinOp,
+    a: &Value,
+    b: &Value,
+    e: &Expr,
+    lhs: &Expr,
+    rhs: &Expr,
+) -> Result<Option<Kind>, Diagnostic> {
     let mismatch = |msg: String, hint: &str| {
-        Err(Diagnostic::error("wrong-unit", msg, e.span, "units do not combine")
-            .with_label(lhs.span, kind_name(a.kind))
-            .with_label(rhs.span, kind_name(b.kind))
-            .with_hint(hint.to_owned()))
+        Err(
+            Diagnostic::error("wrong-unit", msg, e.span, "units do not combine")
+                .with_label(lhs.span, kind_name(a.kind))
+                .with_label(rhs.span, kind_name(b.kind))
+                .with_hint(hint.to_owned()),
+        )
     };
     match op {
         BinOp::Add | BinOp::Sub => match (a.kind, b.kind) {
@@ -319,7 +376,12 @@ pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f
             "wrong-unit",
             format!("{what} is {}, not {}", want.describe(), k.describe()),
             v.unit_span.unwrap_or(q.span),
-            format!("{} unit", k.describe().trim_start_matches("a ").trim_start_matches("an ")),
+            format!(
+                "{} unit",
+                k.describe()
+                    .trim_start_matches("a ")
+                    .trim_start_matches("an ")
+            ),
         )
         .with_label(q.span, "this value")
         .with_hint(format!("{what} takes {}", want.units()))),
@@ -404,8 +466,12 @@ mod tests {
     fn qty(text: &str, want: Kind) -> Result<f64, Diagnostic> {
         let src = crate::source::Source::new("t", format!("chip t {{ G({text}) on q }}"));
         let ast = syntax::parse(&src).unwrap();
-        let Item::Chip(c) = &ast.items[0] else { panic!() };
-        let StmtKind::Apply(a) = &c.body[0].kind else { panic!() };
+        let Item::Chip(c) = &ast.items[0] else {
+            panic!()
+        };
+        let StmtKind::Apply(a) = &c.body[0].kind else {
+            panic!()
+        };
         quantity(&a.args.as_ref().unwrap()[0], want, &Scope::default(), "it")
     }
 
@@ -415,18 +481,33 @@ mod tests {
     fn units_bind_to_their_term() {
         let pi = std::f64::consts::PI;
         assert!((qty("pi/2 + 30 deg", Kind::Angle).unwrap() - 2.0 * pi / 3.0).abs() < 1e-15);
-        assert!((qty("(pi/2 + 30) deg", Kind::Angle).unwrap() - (pi / 2.0 + 30.0) * pi / 180.0).abs() < 1e-15);
+        assert!(
+            (qty("(pi/2 + 30) deg", Kind::Angle).unwrap() - (pi / 2.0 + 30.0) * pi / 180.0).abs()
+                < 1e-15
+        );
         assert!((qty("1 mm + 20 um", Kind::Length).unwrap() - 1020.0).abs() < 1e-12);
         assert!((qty("1/4 + 10%", Kind::Fraction).unwrap() - 0.35).abs() < 1e-15);
         assert!((qty("2*15 deg", Kind::Angle).unwrap() - pi / 6.0).abs() < 1e-15);
         assert!((qty("-(30 deg)*2", Kind::Angle).unwrap() + pi / 3.0).abs() < 1e-15);
         assert!((qty("asin(sin(30 deg))", Kind::Angle).unwrap() - pi / 6.0).abs() < 1e-15);
         assert!((qty("(3 mm)/(1 um)", Kind::Number).unwrap() - 3000.0).abs() < 1e-9);
-        assert_eq!(qty("2 + 3 nm", Kind::Length).unwrap_err().code, "missing-unit");
-        assert_eq!(qty("1 mm + 3 deg", Kind::Length).unwrap_err().code, "wrong-unit");
-        assert_eq!(qty("(2 nm)*(3 nm)", Kind::Length).unwrap_err().code, "wrong-unit");
+        assert_eq!(
+            qty("2 + 3 nm", Kind::Length).unwrap_err().code,
+            "missing-unit"
+        );
+        assert_eq!(
+            qty("1 mm + 3 deg", Kind::Length).unwrap_err().code,
+            "wrong-unit"
+        );
+        assert_eq!(
+            qty("(2 nm)*(3 nm)", Kind::Length).unwrap_err().code,
+            "wrong-unit"
+        );
         assert_eq!(qty("3 nm", Kind::Angle).unwrap_err().code, "wrong-unit");
         assert_eq!(qty("3", Kind::Length).unwrap_err().code, "missing-unit");
-        assert_eq!(qty("sqrt(4 nm)", Kind::Length).unwrap_err().code, "wrong-unit");
+        assert_eq!(
+            qty("sqrt(4 nm)", Kind::Length).unwrap_err().code,
+            "wrong-unit"
+        );
     }
 }

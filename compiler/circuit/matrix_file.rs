@@ -31,18 +31,18 @@ pub fn parse(text: &str) -> Result<DMatrix<Complex64>, MatrixFileError> {
             })?;
             row.push(v);
         }
-        if let Some((first_line, first)) = rows.first() {
-            if first.len() != row.len() {
-                return Err(MatrixFileError {
-                    line: k + 1,
-                    message: format!(
-                        "this row has {} entries, the row on line {} has {}",
-                        row.len(),
-                        first_line,
-                        first.len()
-                    ),
-                });
-            }
+        if let Some((first_line, first)) = rows.first()
+            && first.len() != row.len()
+        {
+            return Err(MatrixFileError {
+                line: k + 1,
+                message: format!(
+                    "this row has {} entries, the row on line {} has {}",
+                    row.len(),
+                    first_line,
+                    first.len()
+                ),
+            });
         }
         rows.push((k + 1, row));
     }

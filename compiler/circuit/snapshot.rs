@@ -89,11 +89,15 @@ impl fmt::Display for Circuit {
                     self.modes[modes[0]].name,
                     self.modes[modes[1]].name
                 )?,
-                OpKind::Phase { phase_rad, mode } => {
-                    write!(line, "phase({}) on {}", num(*phase_rad), self.modes[*mode].name)?
-                }
+                OpKind::Phase { phase_rad, mode } => write!(
+                    line,
+                    "phase({}) on {}",
+                    num(*phase_rad),
+                    self.modes[*mode].name
+                )?,
                 OpKind::Unitary { modes, matrix } => {
-                    let ms: Vec<&str> = modes.iter().map(|&m| self.modes[m].name.as_str()).collect();
+                    let ms: Vec<&str> =
+                        modes.iter().map(|&m| self.modes[m].name.as_str()).collect();
                     let rows: Vec<String> = (0..matrix.nrows())
                         .map(|i| {
                             let r: Vec<String> = (0..matrix.ncols())

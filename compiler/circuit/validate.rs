@@ -149,14 +149,14 @@ pub fn validate(c: &Circuit) -> Diagnostics {
             );
         }
     }
-    if let Some(b) = &c.band {
-        if !(b.start_um > 0.0 && b.stop_um >= b.start_um && b.steps >= 1) {
-            bad(
-                &mut d,
-                b.span,
-                "the band is not an increasing wavelength grid".into(),
-            );
-        }
+    if let Some(b) = &c.band
+        && !(b.start_um > 0.0 && b.stop_um >= b.start_um && b.steps >= 1)
+    {
+        bad(
+            &mut d,
+            b.span,
+            "the band is not an increasing wavelength grid".into(),
+        );
     }
     d
 }

@@ -115,11 +115,11 @@ impl Printer<'_> {
     /// Writes `lines` (the last one may get a trailing comment).
     fn lines(&mut self, depth: usize, mut lines: Vec<String>, end: usize) {
         self.last_end = end;
-        if let Some(t) = self.trailing(end) {
-            if let Some(last) = lines.last_mut() {
-                last.push(' ');
-                last.push_str(&t);
-            }
+        if let Some(t) = self.trailing(end)
+            && let Some(last) = lines.last_mut()
+        {
+            last.push(' ');
+            last.push_str(&t);
         }
         for l in &lines {
             self.line(depth, l);
@@ -141,11 +141,14 @@ impl Printer<'_> {
         // A comment after `{` is the header's only if no statement stands
         // between them on that line.
         let first = body.first().map_or(close.start, |s| s.span.start);
-        if self.comments.get(self.next).is_some_and(|c| c.span.start < first) {
-            if let Some(t) = self.trailing(header_span.end) {
-                h.push(' ');
-                h.push_str(&t);
-            }
+        if self
+            .comments
+            .get(self.next)
+            .is_some_and(|c| c.span.start < first)
+            && let Some(t) = self.trailing(header_span.end)
+        {
+            h.push(' ');
+            h.push_str(&t);
         }
         self.line(depth, &h);
         for s in body {
@@ -205,8 +208,14 @@ impl Printer<'_> {
                     self.lines(depth, vec!["}".into()], s.span.end);
                 }
             }
-            StmtKind::Unitary(UnitaryStmt { operands: ops, source: MatrixSource::Literal(m) }) => {
-                let inner = self.comments.get(self.next).is_some_and(|c| c.span.start < s.span.end);
+            StmtKind::Unitary(UnitaryStmt {
+                operands: ops,
+                source: MatrixSource::Literal(m),
+            }) => {
+                let inner = self
+                    .comments
+                    .get(self.next)
+                    .is_some_and(|c| c.span.start < s.span.end);
                 let head = format!("unitary on {} = [", operands(ops));
                 let rows: Vec<String> = m.rows.iter().map(row_text).collect();
                 let one = format!("{head}{}]", rows.join(", "));
@@ -235,7 +244,14 @@ impl Printer<'_> {
 }
 
 fn row_text(r: &MatrixRow) -> String {
-    format!("[{}]", r.entries.iter().map(expr_text).collect::<Vec<_>>().join(", "))
+    format!(
+        "[{}]",
+        r.entries
+            .iter()
+            .map(expr_text)
+            .collect::<Vec<_>>()
+            .join(", ")
+    )
 }
 
 /// Aligns the trailing comments of consecutive lines one space past the
@@ -253,7 +269,10 @@ fn align_trailing_comments(text: &str) -> String {
         }
         let indent = |l: &str| l.len() - l.trim_start_matches(' ').len();
         let mut end = k;
-        while end < lines.len() && lines[end].contains(MARK) && indent(lines[end]) == indent(lines[k]) {
+        while end < lines.len()
+            && lines[end].contains(MARK)
+            && indent(lines[end]) == indent(lines[k])
+        {
             end += 1;
         }
         let split: Vec<(&str, &str)> = lines[k..end]
@@ -263,7 +282,11 @@ fn align_trailing_comments(text: &str) -> String {
                 (code.trim_end(), comment)
             })
             .collect();
-        let width = split.iter().map(|(c, _)| c.chars().count()).max().unwrap_or(0);
+        let width = split
+            .iter()
+            .map(|(c, _)| c.chars().count())
+            .max()
+            .unwrap_or(0);
         for (code, comment) in split {
             let pad = width - code.chars().count() + 1;
             out.push(format!("{code}{}{comment}", " ".repeat(pad)));
@@ -434,9 +457,15 @@ pub fn quantity_text(q: &Quantity) -> String {
 /// Binding strength: what an operand needs to print without parentheses.
 fn prec(e: &Expr) -> u8 {
     match &e.kind {
-        ExprKind::Binary { op: BinOp::Add | BinOp::Sub, .. } => 1,
+        ExprKind::Binary {
+            op: BinOp::Add | BinOp::Sub,
+            ..
+        } => 1,
         ExprKind::WithUnit { .. } => 2,
-        ExprKind::Binary { op: BinOp::Mul | BinOp::Div, .. } => 3,
+        ExprKind::Binary {
+            op: BinOp::Mul | BinOp::Div,
+            ..
+        } => 3,
         ExprKind::Neg(_) => 4,
         ExprKind::Binary { op: BinOp::Pow, .. } => 5,
         _ => 6,
@@ -470,7 +499,9 @@ pub fn expr_text(e: &Expr) -> String {
             u => format!("{} {}", wrap(value, 3), u.as_str()),
         },
         ExprKind::Binary { op, lhs, rhs } => match op {
-            BinOp::Add | BinOp::Sub if is_complex_literal(lhs, rhs) => format!("{}{}{}", expr_text(lhs), op.as_str(), expr_text(rhs)),
+            BinOp::Add | BinOp::Sub if is_complex_literal(lhs, rhs) => {
+                format!("{}{}{}", expr_text(lhs), op.as_str(), expr_text(rhs))
+            }
             BinOp::Add | BinOp::Sub => format!("{} {} {}", wrap(lhs, 1), op.as_str(), wrap(rhs, 2)),
             BinOp::Mul | BinOp::Div => format!("{}{}{}", wrap(lhs, 3), op.as_str(), wrap(rhs, 4)),
             BinOp::Pow => format!("{}^{}", wrap(lhs, 6), wrap(rhs, 4)),

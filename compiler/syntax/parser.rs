@@ -407,7 +407,14 @@ impl<'t> Builder<'t> {
                 let unit_span = span_of(&op);
                 let unit = Unit::parse(op.as_str()).expect("grammar lists the units");
                 let span = acc.span.to(unit_span);
-                acc = Expr { kind: ExprKind::WithUnit { value: Box::new(acc), unit, unit_span }, span };
+                acc = Expr {
+                    kind: ExprKind::WithUnit {
+                        value: Box::new(acc),
+                        unit,
+                        unit_span,
+                    },
+                    span,
+                };
                 self.bump();
                 break;
             }
