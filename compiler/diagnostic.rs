@@ -294,7 +294,8 @@ pub fn render(diag: &Diagnostic, source: &Source, style: Style) -> String {
     };
     let handler = miette::GraphicalReportHandler::new_themed(theme)
         .with_width(100)
-        .with_links(false);
+        .with_links(false)
+        .with_word_splitter(textwrap::WordSplitter::NoHyphenation);
     let report = Rendered {
         diag,
         source: Windowed {

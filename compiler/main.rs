@@ -64,15 +64,31 @@ enum Command {
     },
 }
 
+/// The front end recurses over expressions (bounded by the parser's
+/// limits); a fixed, generous stack makes that safe on every platform,
+/// whatever the main thread's default.
+const STACK_BYTES: usize = 256 << 20;
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
-    let code = match cli.command {
-        Command::Check { files, json, ir } => check(&files, json, ir),
-        Command::Fmt {
-            files,
-            check,
-            stdout,
-        } => fmt(&files, check, stdout),
+    let work = std::thread::Builder::new()
+        .stack_size(STACK_BYTES)
+        .spawn(move || match cli.command {
+            Command::Check { files, json, ir } => check(&files, json, ir),
+            Command::Fmt {
+                files,
+                check,
+                stdout,
+            } => fmt(&files, check, stdout),
+        });
+    let code = match work.map(|h| h.join()) {
+        Ok(Ok(code)) => code,
+        _ => {
+            eprintln!(
+                "error: trilane stopped on an internal error; please report it with the input that caused it"
+            );
+            70
+        }
     };
     ExitCode::from(code)
 }

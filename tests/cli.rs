@@ -23,7 +23,11 @@ const BAD: &str = "chip bad {\n    dualrail a\n    HH on a\n    CZ on a, c\n}\n"
 #[test]
 fn every_example_circuit_checks_clean() {
     let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("circuits");
-    let mut files: Vec<_> = std::fs::read_dir(&dir).unwrap().map(|e| e.unwrap().path()).filter(|p| p.extension().is_some_and(|x| x == "trl")).collect();
+    let mut files: Vec<_> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "trl"))
+        .collect();
     files.sort();
     assert!(files.len() >= 6, "circuits/ holds at least six examples");
     for f in &files {
@@ -33,7 +37,13 @@ fn every_example_circuit_checks_clean() {
         assert!(stderr.is_empty(), "{} has warnings:\n{stderr}", f.display());
     }
     // ... and is already in canonical form.
-    trilane().arg("fmt").arg("--check").args(&files).assert().code(0).stdout("");
+    trilane()
+        .arg("fmt")
+        .arg("--check")
+        .args(&files)
+        .assert()
+        .code(0)
+        .stdout("");
 }
 
 #[test]
@@ -42,17 +52,37 @@ fn check_exit_codes() {
     let good = write(t.path(), "good.trl", GOOD);
     let bad = write(t.path(), "bad.trl", BAD);
     trilane().arg("check").arg(&good).assert().code(0);
-    let out = trilane().arg("check").arg(&good).arg(&bad).output().unwrap();
+    let out = trilane()
+        .arg("check")
+        .arg(&good)
+        .arg(&bad)
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(1));
     let stderr = String::from_utf8(out.stderr).unwrap();
     // Both errors of the file, each located.
-    assert!(stderr.contains("unknown gate `HH`") && stderr.contains("bad.trl:3:5"), "{stderr}");
-    assert!(stderr.contains("`c` is not declared") && stderr.contains("bad.trl:4:14"), "{stderr}");
+    assert!(
+        stderr.contains("unknown gate `HH`") && stderr.contains("bad.trl:3:5"),
+        "{stderr}"
+    );
+    assert!(
+        stderr.contains("`c` is not declared") && stderr.contains("bad.trl:4:14"),
+        "{stderr}"
+    );
     assert!(stderr.contains("did you mean `H`?"), "{stderr}");
     // Usage errors and unreadable files exit 2.
     trilane().arg("check").assert().code(2);
-    trilane().arg("check").arg("--frobnicate").arg(&good).assert().code(2);
-    trilane().arg("check").arg(t.path().join("missing.trl")).assert().code(2);
+    trilane()
+        .arg("check")
+        .arg("--frobnicate")
+        .arg(&good)
+        .assert()
+        .code(2);
+    trilane()
+        .arg("check")
+        .arg(t.path().join("missing.trl"))
+        .assert()
+        .code(2);
     trilane().arg("launch-rockets").assert().code(2);
 }
 
@@ -61,7 +91,13 @@ fn check_json_has_the_documented_shape() {
     let t = tempfile::tempdir().unwrap();
     let good = write(t.path(), "good.trl", GOOD);
     let bad = write(t.path(), "bad.trl", BAD);
-    let out = trilane().arg("check").arg("--json").arg(&good).arg(&bad).output().unwrap();
+    let out = trilane()
+        .arg("check")
+        .arg("--json")
+        .arg(&good)
+        .arg(&bad)
+        .output()
+        .unwrap();
     assert_eq!(out.status.code(), Some(1));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let files = v["files"].as_array().unwrap();
@@ -89,7 +125,10 @@ fn invalid_utf8_is_a_located_error() {
     let out = trilane().arg("check").arg(&p).output().unwrap();
     assert_eq!(out.status.code(), Some(1));
     let stderr = String::from_utf8(out.stderr).unwrap();
-    assert!(stderr.contains("not valid UTF-8") && stderr.contains("latin1.trl:1:7"), "{stderr}");
+    assert!(
+        stderr.contains("not valid UTF-8") && stderr.contains("latin1.trl:1:7"),
+        "{stderr}"
+    );
 }
 
 #[test]
@@ -97,21 +136,49 @@ fn fmt_rewrites_in_place_checks_and_never_touches_broken_files() {
     let t = tempfile::tempdir().unwrap();
     let messy = "chip  m{dualrail a,b // qubits\nH on a   CZ on a,b}\n";
     let p = write(t.path(), "m.trl", messy);
-    trilane().arg("fmt").arg("--check").arg(&p).assert().code(1).stdout(format!("{}\n", p.display()));
-    assert_eq!(std::fs::read_to_string(&p).unwrap(), messy, "--check changes nothing");
+    trilane()
+        .arg("fmt")
+        .arg("--check")
+        .arg(&p)
+        .assert()
+        .code(1)
+        .stdout(format!("{}\n", p.display()));
+    assert_eq!(
+        std::fs::read_to_string(&p).unwrap(),
+        messy,
+        "--check changes nothing"
+    );
     trilane().arg("fmt").arg(&p).assert().code(0);
     let formatted = std::fs::read_to_string(&p).unwrap();
-    assert_eq!(formatted, "chip m {\n    dualrail a, b // qubits\n    H on a\n    CZ on a, b\n}\n");
-    trilane().arg("fmt").arg("--check").arg(&p).assert().code(0).stdout("");
+    assert_eq!(
+        formatted,
+        "chip m {\n    dualrail a, b // qubits\n    H on a\n    CZ on a, b\n}\n"
+    );
+    trilane()
+        .arg("fmt")
+        .arg("--check")
+        .arg(&p)
+        .assert()
+        .code(0)
+        .stdout("");
     // A file that does not parse is left byte-identical, and no temporary remains.
     let broken = "chip b {\n    H on\n}\n";
     let q = write(t.path(), "b.trl", broken);
     trilane().arg("fmt").arg(&q).assert().code(1);
     assert_eq!(std::fs::read_to_string(&q).unwrap(), broken);
-    let names: Vec<_> = std::fs::read_dir(t.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+    let names: Vec<_> = std::fs::read_dir(t.path())
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
     assert_eq!(names.len(), 2, "{names:?}");
     // --stdout prints and writes nothing.
-    trilane().arg("fmt").arg("--stdout").arg(&p).assert().code(0).stdout(formatted);
+    trilane()
+        .arg("fmt")
+        .arg("--stdout")
+        .arg(&p)
+        .assert()
+        .code(0)
+        .stdout(formatted);
 }
 
 #[test]
@@ -119,11 +186,28 @@ fn matrix_files_are_read_beside_the_circuit() {
     let t = tempfile::tempdir().unwrap();
     write(t.path(), "swap.csv", "0, 1\n1, 0\n");
     write(t.path(), "half.csv", "0.5, 0\n0, 1\n");
-    let ok = write(t.path(), "a.trl", "chip a {\n    mode m0, m1\n    unitary on m0 ... m1 from \"swap.csv\"\n}\n");
-    let bad = write(t.path(), "b.trl", "chip b {\n    mode m0, m1\n    unitary on m0 ... m1 from \"half.csv\"\n}\n");
-    let missing = write(t.path(), "c.trl", "chip c {\n    mode m0, m1\n    unitary on m0 ... m1 from \"nowhere.csv\"\n}\n");
+    let ok = write(
+        t.path(),
+        "a.trl",
+        "chip a {\n    mode m0, m1\n    unitary on m0 ... m1 from \"swap.csv\"\n}\n",
+    );
+    let bad = write(
+        t.path(),
+        "b.trl",
+        "chip b {\n    mode m0, m1\n    unitary on m0 ... m1 from \"half.csv\"\n}\n",
+    );
+    let missing = write(
+        t.path(),
+        "c.trl",
+        "chip c {\n    mode m0, m1\n    unitary on m0 ... m1 from \"nowhere.csv\"\n}\n",
+    );
     // Run from another folder: the path is relative to the circuit file.
-    trilane().current_dir(std::env::temp_dir()).arg("check").arg(&ok).assert().code(0);
+    trilane()
+        .current_dir(std::env::temp_dir())
+        .arg("check")
+        .arg(&ok)
+        .assert()
+        .code(0);
     let out = trilane().arg("check").arg(&bad).output().unwrap();
     assert!(String::from_utf8_lossy(&out.stderr).contains("not unitary"));
     let out = trilane().arg("check").arg(&missing).output().unwrap();
@@ -135,7 +219,10 @@ fn matrix_files_are_read_beside_the_circuit() {
 fn help_reads_well() {
     let out = trilane().arg("--help").output().unwrap();
     let s = String::from_utf8(out.stdout).unwrap();
-    assert!(s.contains("check") && s.contains("fmt") && s.contains("Exit codes"), "{s}");
+    assert!(
+        s.contains("check") && s.contains("fmt") && s.contains("Exit codes"),
+        "{s}"
+    );
     let out = trilane().args(["check", "--help"]).output().unwrap();
     let s = String::from_utf8(out.stdout).unwrap();
     assert!(s.contains("--json") && s.contains("FILE"), "{s}");

@@ -17,7 +17,11 @@ struct Folder(PathBuf);
 
 impl FileLoader for Folder {
     fn load(&self, path: &str) -> Result<String, String> {
-        std::fs::read_to_string(self.0.join(path)).map_err(|e| format!("{path}: {e}"))
+        // The same words as the command line, whatever the platform says.
+        std::fs::read_to_string(self.0.join(path)).map_err(|e| match e.kind() {
+            std::io::ErrorKind::NotFound => format!("{path}: no such file"),
+            _ => format!("{path}: {e}"),
+        })
     }
 }
 
@@ -35,10 +39,17 @@ fn cases(dir: &str) -> Vec<PathBuf> {
 /// Reads a case with its name relative to the repository, as a user would
 /// type it, so the expected text does not depend on where the clone is.
 fn source(path: &Path) -> Source {
-    let rel = path.strip_prefix(env!("CARGO_MANIFEST_DIR")).unwrap().display().to_string();
+    let rel = path
+        .strip_prefix(env!("CARGO_MANIFEST_DIR"))
+        .unwrap()
+        .display()
+        .to_string();
     let bytes = std::fs::read(path).unwrap();
     let (text, bad) = trilane::source::decode(&bytes);
-    assert!(bad.is_none(), "{rel}: test cases are UTF-8 (invalid bytes are tested in tests/robustness.rs)");
+    assert!(
+        bad.is_none(),
+        "{rel}: test cases are UTF-8 (invalid bytes are tested in tests/robustness.rs)"
+    );
     Source::new(rel, text)
 }
 
@@ -49,7 +60,10 @@ fn compare(expected_path: &Path, actual: &str, failures: &mut Vec<String>) {
     }
     let want = std::fs::read_to_string(expected_path).unwrap_or_default();
     if want != actual {
-        failures.push(format!("{}:\n--- expected\n{want}\n--- actual\n{actual}", expected_path.display()));
+        failures.push(format!(
+            "{}:\n--- expected\n{want}\n--- actual\n{actual}",
+            expected_path.display()
+        ));
     }
 }
 
@@ -75,13 +89,23 @@ fn check(dir: &str, ext: &str, ok: bool) -> usize {
                 continue;
             }
             (Err(d), true) => {
-                failures.push(format!("{}: expected to elaborate:\n{}", src.name, render_all(d, &src, Style::Plain)));
+                failures.push(format!(
+                    "{}: expected to elaborate:\n{}",
+                    src.name,
+                    render_all(d, &src, Style::Plain)
+                ));
                 continue;
             }
         };
         compare(&path.with_extension(ext), &text, &mut failures);
     }
-    assert!(failures.is_empty(), "{} of {} cases differ:\n{}", failures.len(), all.len(), failures.join("\n"));
+    assert!(
+        failures.is_empty(),
+        "{} of {} cases differ:\n{}",
+        failures.len(),
+        all.len(),
+        failures.join("\n")
+    );
     all.len()
 }
 

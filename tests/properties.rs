@@ -113,7 +113,12 @@ fn expr() -> impl Strategy<Value = String> {
     ];
     leaf.prop_recursive(4, 24, 2, |inner| {
         prop_oneof![
-            (inner.clone(), inner.clone(), prop::sample::select(vec!["+", "-", "*"])).prop_map(|(a, b, op)| format!("{a} {op} {b}")),
+            (
+                inner.clone(),
+                inner.clone(),
+                prop::sample::select(vec!["+", "-", "*"])
+            )
+                .prop_map(|(a, b, op)| format!("{a} {op} {b}")),
             (inner.clone(), 1u32..9).prop_map(|(a, n)| format!("({a})/{n}")),
             inner.clone().prop_map(|a| format!("-({a})")),
             inner.clone().prop_map(|a| format!("sin({a})")),
@@ -147,36 +152,48 @@ fn statement() -> impl Strategy<Value = String> {
 /// A chip with comments on their own lines, after code and at block ends,
 /// and blank lines in between.
 fn circuit() -> impl Strategy<Value = String> {
-    let line = (statement(), prop::option::of(comment()), prop::option::of(comment()), any::<bool>());
-    (prop::collection::vec(line, 1..12), prop::option::of(comment()), prop::option::of(comment()), "[ \t]{0,3}").prop_map(|(lines, head, end, pad)| {
-        let mut s = String::new();
-        if let Some(h) = head {
-            s.push_str(&format!("{h}\n"));
-        }
-        s.push_str("chip gen {\n dualrail a, b, c\nmode m0,m1\n");
-        for (stmt, before, after, blank) in lines {
-            if let Some(b) = before {
-                s.push_str(&format!("{pad}{b}\n"));
+    let line = (
+        statement(),
+        prop::option::of(comment()),
+        prop::option::of(comment()),
+        any::<bool>(),
+    );
+    (
+        prop::collection::vec(line, 1..12),
+        prop::option::of(comment()),
+        prop::option::of(comment()),
+        "[ \t]{0,3}",
+    )
+        .prop_map(|(lines, head, end, pad)| {
+            let mut s = String::new();
+            if let Some(h) = head {
+                s.push_str(&format!("{h}\n"));
             }
-            s.push_str(&format!("{pad}{stmt}"));
-            if let Some(a) = after {
-                s.push_str(&format!("{pad} {a}"));
-            }
-            s.push('\n');
-            if blank {
+            s.push_str("chip gen {\n dualrail a, b, c\nmode m0,m1\n");
+            for (stmt, before, after, blank) in lines {
+                if let Some(b) = before {
+                    s.push_str(&format!("{pad}{b}\n"));
+                }
+                s.push_str(&format!("{pad}{stmt}"));
+                if let Some(a) = after {
+                    s.push_str(&format!("{pad} {a}"));
+                }
                 s.push('\n');
+                if blank {
+                    s.push('\n');
+                }
             }
-        }
-        if let Some(e) = end {
-            s.push_str(&format!("  {e}\n"));
-        }
-        s.push_str("}\n");
-        s
-    })
+            if let Some(e) = end {
+                s.push_str(&format!("  {e}\n"));
+            }
+            s.push_str("}\n");
+            s
+        })
 }
 
 fn ir(text: &str) -> String {
-    let p = trilane::check(&Source::new("g.trl", text), &NoFiles).unwrap_or_else(|d| panic!("generated circuit does not elaborate:\n{text}\n{d:?}"));
+    let p = trilane::check(&Source::new("g.trl", text), &NoFiles)
+        .unwrap_or_else(|d| panic!("generated circuit does not elaborate:\n{text}\n{d:?}"));
     p.circuits.iter().map(|c| c.to_string()).collect()
 }
 

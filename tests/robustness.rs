@@ -19,9 +19,16 @@ fn codes(d: &Diagnostics) -> Vec<&'static str> {
 
 #[test]
 fn twenty_thousand_nested_parentheses() {
-    let text = format!("chip deep {{ dualrail q  RZ({}1{}) on q }}", "(".repeat(20_000), ")".repeat(20_000));
+    let text = format!(
+        "chip deep {{ dualrail q  RZ({}1{}) on q }}",
+        "(".repeat(20_000),
+        ")".repeat(20_000)
+    );
     assert_eq!(codes(&errors(&text)), ["nesting-too-deep"]);
-    let text = format!("chip deep {{ dualrail q  RZ({}1) on q }}", "(".repeat(20_000));
+    let text = format!(
+        "chip deep {{ dualrail q  RZ({}1) on q }}",
+        "(".repeat(20_000)
+    );
     assert_eq!(codes(&errors(&text)), ["nesting-too-deep"]);
     let text = "{".repeat(100_000);
     assert_eq!(codes(&errors(&text)), ["nesting-too-deep"]);
@@ -44,7 +51,10 @@ fn huge_literal_and_division_by_zero() {
     let d = errors("chip c {\n dualrail q\n RZ(1e999) on q\n RX(1/(2-2)) on q\n}");
     assert_eq!(codes(&d), ["overflow", "division-by-zero"]);
     // The primary span of the division error is the zero divisor, line 4.
-    let src = Source::new("t", "chip c {\n dualrail q\n RZ(1e999) on q\n RX(1/(2-2)) on q\n}");
+    let src = Source::new(
+        "t",
+        "chip c {\n dualrail q\n RZ(1e999) on q\n RX(1/(2-2)) on q\n}",
+    );
     assert_eq!(src.line_col(d.0[1].span().start), (4, 7));
 }
 
@@ -53,7 +63,11 @@ fn exponential_definition_expansion_is_cut_off() {
     // d0 doubles into d1 and so on: 2^30 gates if unchecked.
     let mut text = String::from("define d30 on q { X on q }\n");
     for k in (0..30).rev() {
-        text.push_str(&format!("define d{k} on q {{ d{} on q  d{} on q }}\n", k + 1, k + 1));
+        text.push_str(&format!(
+            "define d{k} on q {{ d{} on q  d{} on q }}\n",
+            k + 1,
+            k + 1
+        ));
     }
     text.push_str("chip blow { dualrail q  d0 on q }\n");
     assert_eq!(codes(&errors(&text)), ["too-many-operations"]);
@@ -63,7 +77,9 @@ fn exponential_definition_expansion_is_cut_off() {
 fn a_100000_line_file_checks() {
     let mut text = String::from("chip long {\n    dualrail a, b\n");
     for k in 0..50_000 {
-        text.push_str(&format!("    RZ({k}*pi/1000) on a // step {k}\n    CZ on a, b\n"));
+        text.push_str(&format!(
+            "    RZ({k}*pi/1000) on a // step {k}\n    CZ on a, b\n"
+        ));
     }
     text.push_str("}\n");
     assert!(text.lines().count() >= 100_000);

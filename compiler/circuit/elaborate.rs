@@ -45,6 +45,8 @@ pub struct Program {
 pub const MAX_EXPANSION_DEPTH: usize = 64;
 /// The most operations one chip may expand to.
 pub const MAX_OPS: usize = 1_000_000;
+/// The most uses of definitions one chip may expand.
+pub const MAX_EXPANSION_STEPS: usize = 2_000_000;
 
 pub const KEYWORDS: [&str; 22] = [
     "chip",
@@ -92,6 +94,7 @@ pub fn elaborate(ast: &ast::Ast, files: &dyn FileLoader) -> Result<Program, Diag
         }
     }
     let mut used_defs: BTreeSet<String> = BTreeSet::new();
+    let mut cut_off = false;
     let mut circuits = Vec::new();
     let mut chip_names: BTreeMap<&str, Span> = BTreeMap::new();
     for item in &ast.items {
@@ -111,12 +114,13 @@ pub fn elaborate(ast: &ast::Ast, files: &dyn FileLoader) -> Result<Program, Diag
             let mut e = ChipElab::new(chip, &file_defs, files);
             e.run();
             used_defs.extend(e.used_defs.iter().cloned());
+            cut_off |= e.overflowed;
             diags.extend(e.diags);
             circuits.push(e.circuit);
         }
     }
     for (name, d) in &file_defs {
-        if !used_defs.contains(name) {
+        if !used_defs.contains(name) && !cut_off {
             diags.push(Diagnostic::warning(
                 "unused",
                 format!("definition `{name}` is never used"),
@@ -244,6 +248,10 @@ struct ChipElab<'a> {
     overflowed: bool,
     /// The definitions being expanded and their call sites, outermost first.
     stack: Vec<(String, Span)>,
+    /// Definitions whose expansion reported an error: not expanded again.
+    failed_defs: BTreeSet<String>,
+    expansion_steps: usize,
+    band_span: Option<Span>,
 }
 
 impl<'a> ChipElab<'a> {
@@ -278,6 +286,9 @@ impl<'a> ChipElab<'a> {
             launched: BTreeMap::new(),
             overflowed: false,
             stack: Vec::new(),
+            failed_defs: BTreeSet::new(),
+            expansion_steps: 0,
+            band_span: None,
         }
     }
 
@@ -314,6 +325,12 @@ impl<'a> ChipElab<'a> {
             self.statement(s);
         }
         self.photon_budget();
+        // After an expansion was cut off, "never used" would be noise.
+        let local_names = if self.overflowed {
+            Vec::new()
+        } else {
+            local_names
+        };
         for (name, span) in local_names {
             if !self.used_defs.contains(&name) {
                 self.diags.push(Diagnostic::warning(
@@ -439,10 +456,9 @@ impl<'a> ChipElab<'a> {
             }
             StmtKind::Ancilla { names, photons } => {
                 let count = match photons {
-                    Some(c) => match self.count(c, "a photon number") {
-                        Some(v) => v,
-                        None => return,
-                    },
+                    // Declared even when the count is bad, so that later
+                    // uses do not also report the ancilla as undeclared.
+                    Some(c) => self.count(c, "a photon number").unwrap_or(0),
                     None => 0,
                 };
                 for n in names {
@@ -688,7 +704,7 @@ impl<'a> ChipElab<'a> {
                                 "reversed range",
                             )
                             .with_hint(
-                                "write the one declared first, first, e.g. `m0 ... m7` or `a ... c`",
+                                "start the range at the mode or qubit declared first, e.g. `m0 ... m7` or `a ... c`",
                             ),
                         );
                         None
@@ -699,10 +715,10 @@ impl<'a> ChipElab<'a> {
                                 "bad-range",
                                 "a range runs between two modes or between two qubits",
                                 op.span,
-                                "not a mode range",
+                                "not a range of one kind",
                             )
                             .with_hint(
-                                "use rails like `a.0 ... b.1` or declared modes like `m0 ... m3`",
+                                "a range joins two modes (`m0 ... m3`, `a.0 ... b.1`) or two qubits (`a ... c`)",
                             ),
                         );
                         None
@@ -777,17 +793,23 @@ impl<'a> ChipElab<'a> {
                     _ => false,
                 };
                 if clash {
-                    let what = self.target_name(out[i].0);
-                    self.diags.push(
-                        Diagnostic::error(
-                            "repeated-operand",
-                            format!("`{what}` is used twice in one operation"),
-                            out[i].1,
-                            "used again",
-                        )
+                    let (a, b) = (self.target_name(out[j].0), self.target_name(out[i].0));
+                    let message = if a == b {
+                        format!("`{b}` is used twice in one operation")
+                    } else {
+                        let (rail, qubit) = if matches!(out[i].0, Target::Mode(_)) {
+                            (&b, &a)
+                        } else {
+                            (&a, &b)
+                        };
+                        format!("`{rail}` is a rail of `{qubit}`, and the operation uses both")
+                    };
+                    let d = Diagnostic::error("repeated-operand", message, out[i].1, "used again")
                         .with_label(out[j].1, "first use")
-                        .with_hint("an operation acts on distinct qubits or modes"),
-                    );
+                        .with_hint("an operation acts on distinct qubits or modes");
+                    let calls = self.call_stack(frame);
+                    let d = self.with_call_label(d, &calls);
+                    self.diags.push(d);
                     return None;
                 }
             }
@@ -842,7 +864,7 @@ impl<'a> ChipElab<'a> {
         if let Some(spec) = gates::gate_spec(name) {
             let angles = self.args(a, spec.angles, &calls, &scope, |i| {
                 format!(
-                    "the angle of {}{}",
+                    "the argument of {}{}",
                     name,
                     if spec.angles > 1 {
                         format!(" #{i}")
@@ -881,7 +903,12 @@ impl<'a> ChipElab<'a> {
                     Target::Qubit(q) => qubits.push(*q),
                     Target::Mode(m) => {
                         let mname = self.circuit.modes[*m].name.clone();
-                        let d = Diagnostic::error("wrong-operand", format!("{name} acts on qubits, and `{mname}` is a mode"), *sp, "a mode")
+                        let kind = if matches!(self.circuit.modes[*m].role, ModeRole::Rail { .. }) {
+                            "a rail"
+                        } else {
+                            "a mode"
+                        };
+                        let d = Diagnostic::error("wrong-operand", format!("{name} acts on qubits, and `{mname}` is {kind}"), *sp, kind)
                             .with_hint(match self.circuit.modes[*m].role {
                                 ModeRole::Rail { qubit, .. } => format!("write the qubit `{}`; mode-level elements (rotate, split, phase, unitary) act on rails", self.circuit.qubits[qubit].name),
                                 _ => "mode-level elements (rotate, split, phase, unitary) act on modes".to_owned(),
@@ -1322,15 +1349,41 @@ impl<'a> ChipElab<'a> {
             self.diags.push(d);
             return;
         }
-        if self.stack.len() >= MAX_EXPANSION_DEPTH {
-            self.diags.push(Diagnostic::error(
-                "expansion-too-deep",
-                format!("definitions nest more than {MAX_EXPANSION_DEPTH} deep"),
-                a.callee.span,
-                "too deep",
-            ));
+        if self.failed_defs.contains(name) || self.overflowed {
+            // Reported once already; expanding it again would only repeat
+            // the errors (and, for definitions that use each other twice
+            // over, take exponential time).
             return;
         }
+        if self.stack.len() >= MAX_EXPANSION_DEPTH {
+            self.overflowed = true;
+            self.diags.push(
+                Diagnostic::error(
+                    "expansion-too-deep",
+                    format!("definitions nest more than {MAX_EXPANSION_DEPTH} deep"),
+                    a.callee.span,
+                    "too deep",
+                )
+                .with_hint("a chain this deep is almost certainly generated by mistake; expansion stops here"),
+            );
+            return;
+        }
+        self.expansion_steps += 1;
+        if self.expansion_steps > MAX_EXPANSION_STEPS {
+            self.overflowed = true;
+            let at = self.stack.first().map_or(a.callee.span, |(_, s)| *s);
+            self.diags.push(
+                Diagnostic::error(
+                    "too-many-operations",
+                    format!("the definitions expand more than {MAX_EXPANSION_STEPS} times"),
+                    at,
+                    "expands too far",
+                )
+                .with_hint("a chip of this size cannot be fabricated; check definitions that use each other many times"),
+            );
+            return;
+        }
+        let errors_before = self.diags.error_count();
         let scope = frame.map(|f| f.scope.clone()).unwrap_or_default();
         let params: &[ast::Name] = def.params.as_deref().unwrap_or(&[]);
         let given = a.args.as_ref().map_or(0, Vec::len);
@@ -1400,7 +1453,17 @@ impl<'a> ChipElab<'a> {
             )
             .with_label(def.header, "defined here")
             .with_hint(format!(
-                "write `{name} on {}` with one name for each{}",
+                "write `{name}{} on {}` with one name for each{}",
+                match def.params.as_deref() {
+                    Some(p) if !p.is_empty() => format!(
+                        "({})",
+                        p.iter()
+                            .map(|x| x.text.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                    _ => String::new(),
+                },
                 list.join(", "),
                 if ranged {
                     "; a range cannot stand for one operand"
@@ -1435,6 +1498,9 @@ impl<'a> ChipElab<'a> {
             }
         }
         self.stack.pop();
+        if self.diags.error_count() > errors_before {
+            self.failed_defs.insert(name.clone());
+        }
     }
 
     fn herald(&mut self, it: &ast::HeraldItem) {
@@ -1484,10 +1550,15 @@ impl<'a> ChipElab<'a> {
                         it.target.span,
                         what,
                     )
-                    .with_hint(format!(
-                        "declare it with `ancilla {}` to herald it, or detect it with `detect`",
-                        it.target.text
-                    )),
+                    .with_hint(if what == "a mode" {
+                        format!(
+                            "declare it with `ancilla {}` to herald it, or count it with `detect`",
+                            it.target.text
+                        )
+                    } else {
+                        "qubits and their rails are read by `detect`; heralds read ancilla modes"
+                            .to_owned()
+                    }),
                 );
             }
         }
@@ -1569,7 +1640,7 @@ impl<'a> ChipElab<'a> {
             &r.value,
             metric.kind(),
             &Scope::default(),
-            &format!("the {} limit", metric.name()),
+            &format!("the limit of `require {}`", metric.name()),
         ) {
             Ok(v) => v,
             Err(d) => {
@@ -1706,7 +1777,7 @@ impl<'a> ChipElab<'a> {
     }
 
     fn band(&mut self, b: &ast::Band, span: Span) {
-        if let Some(prev) = &self.circuit.band {
+        if let Some(prev) = self.band_span {
             self.diags.push(
                 Diagnostic::error(
                     "duplicate",
@@ -1714,10 +1785,11 @@ impl<'a> ChipElab<'a> {
                     span,
                     "second band",
                 )
-                .with_label(prev.span, "first here"),
+                .with_label(prev, "first here"),
             );
             return;
         }
+        self.band_span = Some(span);
         let wavelength = |this: &mut Self, q: &ast::Quantity| -> Option<f64> {
             match expr::quantity(q, Kind::Length, &Scope::default(), "a wavelength") {
                 Ok(v) if (0.2..=20.0).contains(&v) => Some(v),

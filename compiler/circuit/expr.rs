@@ -66,6 +66,17 @@ fn kind_name(k: Option<Kind>) -> &'static str {
 
 /// Evaluates an expression whose terms may carry units.
 pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagnostic> {
+    eval_value_in(e, scope, complex, None)
+}
+
+/// As [`eval_value`], knowing what kind the place expects, so that a unit of
+/// the wrong kind is reported as such rather than as a sum that lacks units.
+fn eval_value_in(
+    e: &Expr,
+    scope: &Scope,
+    complex: bool,
+    want: Option<Kind>,
+) -> Result<Value, Diagnostic> {
     let v = match &e.kind {
         ExprKind::Number(text) => Value::bare(real(parse_literal(text, e)?)),
         ExprKind::Imaginary(text) => {
@@ -88,7 +99,7 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
             unit,
             unit_span,
         } => {
-            let v = eval_value(value, scope, complex)?;
+            let v = eval_value_in(value, scope, complex, want)?;
             if v.kind.is_some() {
                 return Err(Diagnostic::error(
                     "wrong-unit",
@@ -106,13 +117,13 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
             }
         }
         ExprKind::Neg(x) => {
-            let v = eval_value(x, scope, complex)?;
+            let v = eval_value_in(x, scope, complex, want)?;
             Value { z: -v.z, ..v }
         }
         ExprKind::Binary { op, lhs, rhs } => {
-            let a = eval_value(lhs, scope, complex)?;
-            let b = eval_value(rhs, scope, complex)?;
-            let kind = combine(*op, &a, &b, e, lhs, rhs)?;
+            let a = eval_value_in(lhs, scope, complex, want)?;
+            let b = eval_value_in(rhs, scope, complex, want)?;
+            let kind = combine(*op, &a, &b, e, lhs, rhs, want)?;
             let unit_span = a.unit_span.or(b.unit_span);
             let (a, b) = (a.z, b.z);
             let z = match op {
@@ -141,8 +152,9 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
                             return Err(Diagnostic::error(
                                 "domain",
                                 format!(
-                                    "a negative number to a fractional power ({} ^ {}) is not real",
-                                    a.re, b.re
+                                    "a negative number to a fractional power, ({})^{}, is not real",
+                                    fmt_real(a.re),
+                                    fmt_real(b.re)
                                 ),
                                 e.span,
                                 "not a real number",
@@ -169,7 +181,7 @@ pub fn eval_value(e: &Expr, scope: &Scope, complex: bool) -> Result<Value, Diagn
             }
         }
         ExprKind::Call { func, arg } => {
-            let x = eval_value(arg, scope, complex)?;
+            let x = eval_value_in(arg, scope, complex, None)?;
             match x.kind {
                 None => {}
                 Some(Kind::Angle) if matches!(func.text.as_str(), "sin" | "cos" | "tan") => {}
@@ -203,6 +215,7 @@ fn combine(
     e: &Expr,
     lhs: &Expr,
     rhs: &Expr,
+    want: Option<Kind>,
 ) -> Result<Option<Kind>, Diagnostic> {
     let mismatch = |msg: String, hint: &str| {
         Err(
@@ -216,6 +229,12 @@ fn combine(
         BinOp::Add | BinOp::Sub => match (a.kind, b.kind) {
             (x, y) if x == y => Ok(x),
             (None, Some(k)) | (Some(k), None) if k.unit_optional() => Ok(Some(k)),
+            (None, Some(k)) | (Some(k), None) if want.is_some_and(|w| !units::accepts(w, k)) => {
+                let w = want.expect("checked");
+                let at = a.unit_span.or(b.unit_span).unwrap_or(e.span);
+                Err(Diagnostic::error("wrong-unit", format!("{} is expected here, not {}", w.describe(), k.describe()), at, format!("{} unit", strip_article(k.describe())))
+                    .with_hint(format!("this place takes {}", w.units())))
+            }
             (None, Some(k)) | (Some(k), None) => Err(Diagnostic::error(
                 "missing-unit",
                 format!("every term of {} needs a unit", k.describe()),
@@ -351,6 +370,10 @@ fn unknown_function(func: &str, e: &Expr) -> Diagnostic {
     }
 }
 
+fn strip_article(s: &str) -> &str {
+    s.trim_start_matches("a ").trim_start_matches("an ")
+}
+
 pub fn fmt_real(x: f64) -> String {
     if x == x.trunc() && x.abs() < 1e15 {
         format!("{}", x as i64)
@@ -362,7 +385,7 @@ pub fn fmt_real(x: f64) -> String {
 /// Evaluates a quantity where a value of `want` kind is expected and returns
 /// it in the internal unit; `what` names the place ("the angle of RY").
 pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f64, Diagnostic> {
-    let v = eval_value(&q.expr, scope, false)?;
+    let v = eval_value_in(&q.expr, scope, false, Some(want))?;
     match v.kind {
         None if !want.unit_optional() => Err(Diagnostic::error(
             "missing-unit",
@@ -376,14 +399,8 @@ pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f
             "wrong-unit",
             format!("{what} is {}, not {}", want.describe(), k.describe()),
             v.unit_span.unwrap_or(q.span),
-            format!(
-                "{} unit",
-                k.describe()
-                    .trim_start_matches("a ")
-                    .trim_start_matches("an ")
-            ),
+            format!("{} unit", strip_article(k.describe())),
         )
-        .with_label(q.span, "this value")
         .with_hint(format!("{what} takes {}", want.units()))),
         Some(_) => Ok(v.z.re),
     }

@@ -16,7 +16,7 @@ use pest::iterators::Pair;
 struct Grammar;
 
 /// Operators and operands one expression may hold.
-pub const MAX_EXPR_NODES: usize = 2_000;
+pub const MAX_EXPR_NODES: usize = 1_000;
 
 #[derive(Clone, Copy, PartialEq, Eq)]
 enum Context {
@@ -47,7 +47,7 @@ pub fn parse_text(text: &str) -> Result<Ast, Diagnostics> {
         match pair.as_rule() {
             Rule::chip => items.push(Item::Chip(b.chip(pair))),
             Rule::define => items.push(Item::Define(b.define(pair))),
-            Rule::top_recover => b.recovered(pair, Context::TopLevel),
+            Rule::top_recover => b.recovered(pair, Context::TopLevel, None),
             _ => {}
         }
     }
@@ -154,10 +154,11 @@ impl<'t> Builder<'t> {
         pairs: impl Iterator<Item = Pair<'a, Rule>>,
         ctx: Context,
     ) -> Vec<Stmt> {
-        let mut out = Vec::new();
+        let mut out: Vec<Stmt> = Vec::new();
         for pair in pairs {
             if pair.as_rule() == Rule::recover {
-                self.recovered(pair, ctx);
+                let prev = out.last().map(|s| s.span);
+                self.recovered(pair, ctx, prev);
             } else if pair.as_rule() == Rule::define {
                 let span = span_of(&pair);
                 out.push(Stmt {
@@ -368,7 +369,7 @@ impl<'t> Builder<'t> {
             self.diags.push(
                 Diagnostic::error(
                     "expression-too-large",
-                    format!("expression has more than {MAX_EXPR_NODES} terms"),
+                    format!("the expression has more than {MAX_EXPR_NODES} operators and operands"),
                     Span::new(span.start, span.start + 1),
                     "this expression",
                 )
@@ -539,17 +540,42 @@ impl<'t> Builder<'t> {
     }
 
     /// A line the grammar skipped: parse it alone to say what is wrong.
-    fn recovered(&mut self, pair: Pair<Rule>, ctx: Context) {
+    fn recovered(&mut self, pair: Pair<Rule>, ctx: Context, prev: Option<Span>) {
         let span = span_of(&pair);
-        let rest = &self.text[span.start..];
-        match Grammar::parse(Rule::statement_alone, rest) {
+        let piece = &self.text[span.start..span.end];
+        let line_start = self.text[..span.start].rfind('\n').map_or(0, |i| i + 1);
+        let after_code = !self.text[line_start..span.start].trim().is_empty();
+        if after_code && is_bare_name(piece) {
+            self.diags.push(
+                Diagnostic::error("syntax", format!("unexpected `{piece}` after the statement"), span, "not part of the statement before it")
+                    .with_hint(format!("separate operands with commas, e.g. `CZ on a, {piece}`; a new statement starts with a gate or a keyword")),
+            );
+            return;
+        }
+        // Tracking the tokens tried makes the message name them (`on`, `,`).
+        pest::set_error_detail(true);
+        // A statement parsed, then its line went on with something that is
+        // not a statement: the statement's own tail is usually what is
+        // wrong (`ancilla h = 1 fotons`). Parse the two together.
+        if let Some(p) =
+            prev.filter(|p| p.end <= span.start && !self.text[p.end..span.start].contains('\n'))
+        {
+            if let Err(e) = Grammar::parse(Rule::statement_line, &self.text[p.start..span.end]) {
+                let d = self.pest_error(e, p.start);
+                if d.span().start > span.start {
+                    self.diags.push(d);
+                    return;
+                }
+            }
+        }
+        match Grammar::parse(Rule::statement_alone, piece) {
             Err(e) => {
                 let d = self.pest_error(e, span.start);
                 self.diags.push(d);
             }
             Ok(mut pairs) => {
                 let stmt = pairs.next().unwrap().into_inner().next().unwrap();
-                let end = span.start + stmt.as_span().end();
+                let end = span.start + stmt.as_str().trim_end().len();
                 let stmt_span = Span::new(span.start, end);
                 let d = match (ctx, stmt.as_rule()) {
                     (Context::TopLevel, Rule::chip_header)
@@ -586,14 +612,12 @@ impl<'t> Builder<'t> {
                         "declarations, launches, detection and requirements belong to the chip",
                     ),
                     (Context::Chip, _) => {
-                        // The statement parses alone but not in place: the
-                        // text after it is the problem.
-                        let after =
-                            end + self.text[end..].len() - self.text[end..].trim_start().len();
+                        let rest = &self.text[end..span.end];
+                        let after = end + rest.len() - rest.trim_start().len();
                         Diagnostic::error(
                             "syntax",
                             "unexpected text after the statement",
-                            Span::new(after, after + 1),
+                            Span::new(after, span.end.max(after + 1)),
                             "not expected here",
                         )
                         .with_hint("put each statement in full before the next")
@@ -606,16 +630,56 @@ impl<'t> Builder<'t> {
 
     fn pest_error(&self, e: pest::error::Error<Rule>, offset: usize) -> Diagnostic {
         use pest::error::{ErrorVariant, InputLocation};
-        let pos = offset
-            + match e.location {
-                InputLocation::Pos(p) => p,
-                InputLocation::Span((a, _)) => a,
-            };
-        let found = describe_found(self.text, pos);
-        let (expected, hint) = match &e.variant {
-            ErrorVariant::ParsingError { positives, .. } => expectation(positives),
-            ErrorVariant::CustomError { message } => (message.clone(), None),
+        let attempts = e.parse_attempts();
+        let location = match e.location {
+            InputLocation::Pos(p) => p,
+            InputLocation::Span((a, _)) => a,
         };
+        // The furthest attempt, unless it lies inside a keyword that a
+        // name's lookahead ruled out (`dualrail on`).
+        let furthest = attempts.as_ref().map_or(location, |a| a.max_position);
+        let inside_word = furthest > location
+            && self
+                .text
+                .get(offset + location..offset + furthest)
+                .is_some_and(|w| w.chars().all(|c| c.is_ascii_alphanumeric() || c == '_'));
+        let pos = offset + if inside_word { location } else { furthest };
+        let found = describe_found(self.text, pos);
+        let rules: Vec<Rule> = match &e.variant {
+            ErrorVariant::ParsingError { positives, .. } => positives.clone(),
+            ErrorVariant::CustomError { .. } => Vec::new(),
+        };
+        let tokens: Vec<String> = attempts
+            .map(|a| {
+                a.expected_tokens()
+                    .into_iter()
+                    // Only literal tokens (pest does not export the token
+                    // type; its Debug form says which kind a token is).
+                    .filter(|t| format!("{t:?}").starts_with("Sensitive"))
+                    .map(|t| t.to_string())
+                    .filter(|t| {
+                        !matches!(
+                            t.as_str(),
+                            " " | "\t" | "\r" | "\n" | "\u{feff}" | "//" | "."
+                        )
+                    })
+                    .collect()
+            })
+            .unwrap_or_default();
+        let (expected, mut hint) = expectation(&rules, &tokens);
+        if hint.is_none() && found.2 && expected.contains("a name") {
+            hint = Some(format!(
+                "{} is a keyword and cannot be used as a name",
+                found.0
+            ));
+        }
+        if hint.is_none()
+            && expected.contains("a name")
+            && found.0.starts_with(|c: char| c == '`')
+            && found.0[1..].starts_with(|c: char| c.is_ascii_uppercase())
+        {
+            hint = Some("names of qubits, modes and definitions start with a lower-case letter; upper case is for gates".to_owned());
+        }
         let end = (pos + found.1).min(self.text.len()).max(pos);
         let mut d = Diagnostic::error(
             "syntax",
@@ -628,6 +692,13 @@ impl<'t> Builder<'t> {
         }
         d
     }
+}
+
+fn is_bare_name(s: &str) -> bool {
+    let mut c = s.chars();
+    c.next()
+        .is_some_and(|f| f.is_ascii_alphabetic() || f == '_')
+        && c.all(|x| x.is_ascii_alphanumeric() || x == '_')
 }
 
 trait IntoStmt {
@@ -683,32 +754,86 @@ fn binary(op: BinOp, lhs: Expr, rhs: Expr) -> Expr {
     }
 }
 
-/// What stands at `pos`, for "found ..." (and its length in bytes).
-fn describe_found(text: &str, pos: usize) -> (String, usize) {
+/// What stands at `pos`, for "found ...": its description, its length in
+/// bytes, and whether it is a keyword.
+fn describe_found(text: &str, pos: usize) -> (String, usize, bool) {
     let rest = &text[crate::source::floor_char_boundary(text, pos.min(text.len()))..];
     let Some(c) = rest.chars().next() else {
-        return ("the end of the file".into(), 0);
+        return ("the end of the file".into(), 0, false);
     };
     if c == '\n' || c == '\r' {
-        return ("the end of the line".into(), 0);
+        return ("the end of the line".into(), 0, false);
     }
     if c.is_alphanumeric() || c == '_' {
         let word: String = rest
             .chars()
-            .take_while(|c| c.is_alphanumeric() || *c == '_' || *c == '.')
+            .take_while(|c| c.is_alphanumeric() || *c == '_')
             .collect();
-        return (format!("`{word}`"), word.len());
+        let keyword = crate::circuit::KEYWORDS.contains(&word.as_str());
+        return (format!("`{word}`"), word.len(), keyword);
     }
-    (format!("`{c}`"), c.len_utf8())
+    if c.is_whitespace()
+        || c.is_control()
+        || matches!(c, '\u{200B}'..='\u{200F}' | '\u{2060}' | '\u{FEFF}')
+    {
+        return (
+            format!("the invisible character U+{:04X}", c as u32),
+            c.len_utf8(),
+            false,
+        );
+    }
+    (format!("`{c}`"), c.len_utf8(), false)
 }
 
 /// Friendly words for what the parser wanted, and a hint for common slips.
-fn expectation(rules: &[Rule]) -> (String, Option<String>) {
-    let mut words: Vec<&str> = Vec::new();
+fn expectation(rules: &[Rule], tokens: &[String]) -> (String, Option<String>) {
+    // Name the punctuation and connecting words the parser could take next;
+    // keywords it merely ruled out, operators and units are summarised.
+    const STRUCTURAL: [&str; 21] = [
+        "on", "(", ")", ",", "[", "]", "=", "{", "}", ">", "|", "to", "in", "at", "yield", "from",
+        "steps", "step", "photons", "photon", "...",
+    ];
+    let comparing = rules.contains(&Rule::cmp_op);
+    let mut words: Vec<String> = tokens
+        .iter()
+        .filter(|t| STRUCTURAL.contains(&t.as_str()) && !(comparing && t.as_str() == ">"))
+        .map(|t| format!("`{t}`"))
+        .collect();
+    if tokens
+        .iter()
+        .any(|t| matches!(t.as_str(), "+" | "-" | "*" | "/" | "^"))
+        && rules.iter().all(|r| *r != Rule::unit)
+    {
+        words.push("an operator".into());
+    }
+    if tokens.iter().any(|t| super::ast::Unit::parse(t).is_some()) {
+        words.push("a unit".into());
+    }
+    let rules: Vec<Rule> = if tokens.is_empty() {
+        rules.to_vec()
+    } else {
+        rules
+            .iter()
+            .copied()
+            .filter(|r| {
+                !matches!(
+                    r,
+                    Rule::args
+                        | Rule::unit
+                        | Rule::add_op
+                        | Rule::mul_op
+                        | Rule::def_params
+                        | Rule::photon_word
+                        | Rule::step_word
+                )
+            })
+            .collect()
+    };
+    let rules = &rules[..];
     let mut hint = None;
     for r in rules {
         let w = match r {
-            Rule::EOI => "the end of the file",
+            Rule::EOI => "the end of the statement",
             Rule::chip | Rule::chip_header => "`chip NAME {`",
             Rule::define | Rule::define_header => "`define NAME on OPERANDS {`",
             Rule::chip_name
@@ -750,8 +875,8 @@ fn expectation(rules: &[Rule]) -> (String, Option<String>) {
             Rule::def_params => "parameters `(a, b)`",
             _ => "a statement",
         };
-        if !words.contains(&w) {
-            words.push(w);
+        if !words.iter().any(|x| x == w) {
+            words.push(w.to_owned());
         }
         if matches!(r, Rule::photon_word) {
             hint = Some("photon numbers read `= 1 photon` or `= 2 photons`".to_owned());
@@ -759,6 +884,12 @@ fn expectation(rules: &[Rule]) -> (String, Option<String>) {
         if matches!(r, Rule::step_word) {
             hint = Some("a band reads `band 1540 nm to 1560 nm in 5 steps`".to_owned());
         }
+    }
+    if words.iter().any(|w| w == "an operand") {
+        words.retain(|w| w != "a name");
+    }
+    if rules.contains(&Rule::photon_word) || tokens.iter().any(|t| t == "photon") {
+        hint = Some("photon numbers read `= 1 photon` or `= 2 photons`".to_owned());
     }
     let text = match words.len() {
         0 => "something else".to_owned(),

@@ -41,58 +41,38 @@ pub fn prescan(text: &str) -> Diagnostics {
                             Span::new(i, i + 1),
                             format!("nesting level {} starts here", stack.len()),
                         )
-                        .with_hint("split the expression, or name a part of it with a definition parameter"),
+                        .with_hint("no circuit needs this much nesting: flatten the expression or the blocks"),
                     );
                     return diags;
                 }
             }
             close @ (b')' | b']' | b'}') => {
-                let want = match close {
-                    b')' => b'(',
-                    b']' => b'[',
-                    _ => b'{',
-                };
-                match stack.last() {
-                    Some(&(open, _)) if open == want => {
-                        stack.pop();
+                // Only braces must balance here: a bracket left open in one
+                // line is the parser's to report, in context.
+                if close != b'}' {
+                    if let Some(k) = stack.iter().rposition(|(o, _)| *o != b'{') {
+                        if stack[k + 1..].is_empty() {
+                            stack.pop();
+                        }
                     }
-                    Some(&(open, at)) if open == b'{' || close == b'}' => {
-                        // A brace against a bracket of another kind: the brace
-                        // structure is broken, report and stop.
-                        diags.push(
-                            Diagnostic::error(
-                                "unbalanced",
-                                format!("`{}` does not match `{}`", close as char, open as char),
-                                Span::new(i, i + 1),
-                                "this closes",
-                            )
-                            .with_label(Span::new(at, at + 1), "what was opened here")
-                            .with_hint(format!(
-                                "close `{}` with `{}` first",
-                                open as char,
-                                closing(open) as char
-                            )),
-                        );
-                        return diags;
-                    }
-                    Some(_) => {
-                        // `(` closed by `]` inside a line: the parser reports it
-                        // in context; keep the structure going.
-                        stack.pop();
-                    }
-                    None if close == b'}' => {
-                        diags.push(
-                            Diagnostic::error(
-                                "unbalanced",
-                                "`}` without a matching `{`",
-                                Span::new(i, i + 1),
-                                "nothing to close here",
-                            )
-                            .with_hint("remove it, or check the braces above"),
-                        );
-                        return diags;
-                    }
-                    None => {}
+                    i += 1;
+                    continue;
+                }
+                // Brackets still open inside this block are forgotten.
+                while stack.last().is_some_and(|(o, _)| *o != b'{') {
+                    stack.pop();
+                }
+                if stack.pop().is_none() {
+                    diags.push(
+                        Diagnostic::error(
+                            "unbalanced",
+                            "`}` without a matching `{`",
+                            Span::new(i, i + 1),
+                            "nothing to close here",
+                        )
+                        .with_hint("remove it, or check the braces above"),
+                    );
+                    return diags;
                 }
             }
             _ => {}
@@ -111,14 +91,6 @@ pub fn prescan(text: &str) -> Diagnostics {
         );
     }
     diags
-}
-
-fn closing(open: u8) -> u8 {
-    match open {
-        b'(' => b')',
-        b'[' => b']',
-        _ => b'}',
-    }
 }
 
 #[cfg(test)]
@@ -143,5 +115,7 @@ mod tests {
         assert!(prescan("chip a { // {\n process \"x{.toml\" }").is_empty());
         assert!(!prescan("chip a { ").is_empty());
         assert!(!prescan("chip a { } }").is_empty());
+        // An unclosed parenthesis is left to the parser.
+        assert!(prescan("chip a { RZ(1 on q\n H on q }").is_empty());
     }
 }
