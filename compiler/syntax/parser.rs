@@ -559,13 +559,12 @@ impl<'t> Builder<'t> {
         // wrong (`ancilla h = 1 fotons`). Parse the two together.
         if let Some(p) =
             prev.filter(|p| p.end <= span.start && !self.text[p.end..span.start].contains('\n'))
+            && let Err(e) = Grammar::parse(Rule::statement_line, &self.text[p.start..span.end])
         {
-            if let Err(e) = Grammar::parse(Rule::statement_line, &self.text[p.start..span.end]) {
-                let d = self.pest_error(e, p.start);
-                if d.span().start > span.start {
-                    self.diags.push(d);
-                    return;
-                }
+            let d = self.pest_error(e, p.start);
+            if d.span().start > span.start {
+                self.diags.push(d);
+                return;
             }
         }
         match Grammar::parse(Rule::statement_alone, piece) {
@@ -675,7 +674,7 @@ impl<'t> Builder<'t> {
         }
         if hint.is_none()
             && expected.contains("a name")
-            && found.0.starts_with(|c: char| c == '`')
+            && found.0.starts_with('`')
             && found.0[1..].starts_with(|c: char| c.is_ascii_uppercase())
         {
             hint = Some("names of qubits, modes and definitions start with a lower-case letter; upper case is for gates".to_owned());

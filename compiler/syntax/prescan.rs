@@ -50,10 +50,8 @@ pub fn prescan(text: &str) -> Diagnostics {
                 // Only braces must balance here: a bracket left open in one
                 // line is the parser's to report, in context.
                 if close != b'}' {
-                    if let Some(k) = stack.iter().rposition(|(o, _)| *o != b'{') {
-                        if stack[k + 1..].is_empty() {
-                            stack.pop();
-                        }
+                    if stack.last().is_some_and(|(o, _)| *o != b'{') {
+                        stack.pop();
                     }
                     i += 1;
                     continue;
