@@ -10,8 +10,11 @@ use trilane::circuit::FileLoader;
 use trilane::diagnostic::{self, Diagnostic, Diagnostics, Style};
 use trilane::source::{self, Source, Span};
 
-/// trilane compiles dual-rail photonic quantum circuits into chips of
+/// trilane: a compiler from dual-rail photonic quantum circuits to chips of
 /// fabrication-robust three-waveguide cells.
+///
+/// This release has the front end: `check` validates circuit files and
+/// `fmt` formats them. The compile stages follow.
 ///
 /// Exit codes: 0 success; 1 the input has errors (or a requirement fails);
 /// 2 usage error (bad options, unreadable file).
@@ -150,6 +153,9 @@ struct JsonReport {
 struct JsonFile {
     path: String,
     ok: bool,
+    /// Why the file could not be read at all (then there are no diagnostics).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    error: Option<String>,
     chips: Vec<String>,
     diagnostics: Vec<JsonDiagnostic>,
 }
@@ -198,6 +204,7 @@ fn check(files: &[PathBuf], json: bool, ir: bool) -> u8 {
                     report.files.push(JsonFile {
                         path: path.display().to_string(),
                         ok: false,
+                        error: Some(msg.clone()),
                         chips: vec![],
                         diagnostics: vec![],
                     });
@@ -224,6 +231,7 @@ fn check(files: &[PathBuf], json: bool, ir: bool) -> u8 {
             report.files.push(JsonFile {
                 path: src.name.clone(),
                 ok,
+                error: None,
                 chips: program
                     .iter()
                     .flat_map(|p| p.circuits.iter().map(|c| c.name.clone()))

@@ -48,7 +48,7 @@ pub const MAX_OPS: usize = 1_000_000;
 /// The most uses of definitions one chip may expand.
 pub const MAX_EXPANSION_STEPS: usize = 2_000_000;
 
-pub const KEYWORDS: [&str; 22] = [
+pub const KEYWORDS: [&str; 23] = [
     "chip",
     "process",
     "dualrail",
@@ -71,6 +71,7 @@ pub const KEYWORDS: [&str; 22] = [
     "photon",
     "photons",
     "steps",
+    "step",
 ];
 
 const TOLERANCE_KEYS: [(&str, Kind); 7] = [
@@ -170,6 +171,8 @@ fn register_define<'a>(
     if gates::element_spec(n).is_some()
         || KEYWORDS.contains(&n.as_str())
         || expr::FUNCTIONS.contains(&n.as_str())
+        || n == "pi"
+        || n == "i"
     {
         diags.push(
             Diagnostic::error(
@@ -180,7 +183,7 @@ fn register_define<'a>(
             )
             .with_hint("choose another lower-case name"),
         );
-        return;
+        // Still registered, so that its uses do not also read as unknown.
     }
     if let Some(first) = defs.get(n) {
         diags.push(
@@ -228,6 +231,8 @@ enum Target {
 
 struct Frame<'d> {
     def: &'d Define,
+    /// A file-level definition sees only file-level definitions.
+    file_level: bool,
     call: Span,
     bindings: BTreeMap<String, Target>,
     scope: Scope,
@@ -252,6 +257,9 @@ struct ChipElab<'a> {
     failed_defs: BTreeSet<String>,
     expansion_steps: usize,
     band_span: Option<Span>,
+    /// The file-level definitions, for the scope of their own bodies.
+    file_defs: BTreeMap<String, &'a Define>,
+    tolerance_keys: BTreeMap<String, Span>,
 }
 
 impl<'a> ChipElab<'a> {
@@ -289,7 +297,21 @@ impl<'a> ChipElab<'a> {
             failed_defs: BTreeSet::new(),
             expansion_steps: 0,
             band_span: None,
+            file_defs: file_defs.clone(),
+            tolerance_keys: BTreeMap::new(),
         }
+    }
+
+    /// Records a diagnostic; inside a definition it also points at the use
+    /// being expanded.
+    fn report(&mut self, d: Diagnostic) {
+        let d = match self.stack.last() {
+            Some((_, call)) if !d.labels.iter().any(|l| l.span == *call) => {
+                d.with_label(*call, "in this use of the definition")
+            }
+            _ => d,
+        };
+        self.diags.push(d);
     }
 
     fn run(&mut self) {
@@ -299,7 +321,7 @@ impl<'a> ChipElab<'a> {
         for s in body {
             if let StmtKind::Define(d) = &s.kind {
                 if let Some(outer) = self.defs.get(&d.name.text) {
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "duplicate",
                             format!("definition `{}` is declared twice", d.name.text),
@@ -333,7 +355,7 @@ impl<'a> ChipElab<'a> {
         };
         for (name, span) in local_names {
             if !self.used_defs.contains(&name) {
-                self.diags.push(Diagnostic::warning(
+                self.report(Diagnostic::warning(
                     "unused",
                     format!("definition `{name}` is never used"),
                     span,
@@ -348,7 +370,7 @@ impl<'a> ChipElab<'a> {
 
     fn declare_name(&mut self, name: &ast::Name, target: Target) -> bool {
         if KEYWORDS.contains(&name.text.as_str()) {
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "reserved",
                     format!(
@@ -363,7 +385,7 @@ impl<'a> ChipElab<'a> {
             return false;
         }
         if let Some((_, first)) = self.names.get(&name.text) {
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "duplicate",
                     format!("`{}` is declared twice", name.text),
@@ -396,7 +418,7 @@ impl<'a> ChipElab<'a> {
                     let first = match prev {
                         ProcessRef::Preset { span, .. } | ProcessRef::File { span, .. } => *span,
                     };
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "duplicate",
                             "a chip names one process",
@@ -404,9 +426,7 @@ impl<'a> ChipElab<'a> {
                             "second process line",
                         )
                         .with_label(first, "first named here")
-                        .with_hint(
-                            "keep one `process` line; `--process` overrides it on the command line",
-                        ),
+                        .with_hint("keep one `process` line"),
                     );
                     return;
                 }
@@ -476,7 +496,7 @@ impl<'a> ChipElab<'a> {
         match c.text.parse::<u32>() {
             Ok(v) if v <= 1000 => Some(v),
             _ => {
-                self.diags.push(
+                self.report(
                     Diagnostic::error(
                         "out-of-range",
                         format!("{what} of {} is beyond what trilane handles", c.text),
@@ -494,8 +514,12 @@ impl<'a> ChipElab<'a> {
 
     fn statement(&mut self, s: &'a Stmt) {
         let is_op = matches!(s.kind, StmtKind::Apply(_) | StmtKind::Unitary(_));
+        if let (StmtKind::Apply(a), Some(_)) = (&s.kind, self.detect_span) {
+            // Misplaced, but used: no "never used" warning on top.
+            self.used_defs.insert(a.callee.text.clone());
+        }
         if is_op && let Some(d) = self.detect_span {
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "after-detect",
                     "an operation follows `detect`",
@@ -550,7 +574,7 @@ impl<'a> ChipElab<'a> {
                     }
                     None => d.with_hint(format!("declared here: {}", known.join(", "))),
                 };
-                self.diags.push(d);
+                self.report(d);
                 None
             }
         }
@@ -561,7 +585,7 @@ impl<'a> ChipElab<'a> {
             return;
         };
         if let Some(first) = self.launched.insert(it.target.text.clone(), it.span) {
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "duplicate",
                     format!("`{}` is launched twice", it.target.text),
@@ -581,7 +605,7 @@ impl<'a> ChipElab<'a> {
                     self.circuit.modes[r0].photons = u32::from(v == 0);
                     self.circuit.modes[r1].photons = u32::from(v == 1);
                 } else {
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "bad-launch",
                             format!("a dual-rail qubit starts in |0> or |1>, not |{bits}>"),
@@ -592,7 +616,7 @@ impl<'a> ChipElab<'a> {
                     );
                 }
             }
-            (Target::Qubit(_), LaunchValue::Photons(c)) => self.diags.push(
+            (Target::Qubit(_), LaunchValue::Photons(c)) => self.report(
                 Diagnostic::error(
                     "bad-launch",
                     format!(
@@ -609,7 +633,7 @@ impl<'a> ChipElab<'a> {
             ),
             (Target::Mode(m), LaunchValue::Photons(c)) => {
                 if self.circuit.modes[m].role == ModeRole::Ancilla {
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "bad-launch",
                             format!(
@@ -628,7 +652,7 @@ impl<'a> ChipElab<'a> {
                     self.circuit.modes[m].photons = v;
                 }
             }
-            (Target::Mode(_), LaunchValue::Ket { span, .. }) => self.diags.push(
+            (Target::Mode(_), LaunchValue::Ket { span, .. }) => self.report(
                 Diagnostic::error(
                     "bad-launch",
                     format!(
@@ -655,7 +679,7 @@ impl<'a> ChipElab<'a> {
                             self.circuit.qubits[q].rails[usize::from(index == "1")],
                         )]),
                         _ => {
-                            self.diags.push(
+                            self.report(
                                 Diagnostic::error(
                                     "bad-rail",
                                     format!("a dual-rail qubit has rails .0 and .1, not .{index}"),
@@ -671,7 +695,7 @@ impl<'a> ChipElab<'a> {
                         }
                     },
                     Target::Mode(_) => {
-                        self.diags.push(
+                        self.report(
                             Diagnostic::error(
                                 "bad-rail",
                                 format!("`{}` is a mode, not a qubit: it has no rails", qubit.text),
@@ -685,6 +709,13 @@ impl<'a> ChipElab<'a> {
                 }
             }
             OperandKind::Range(a, b) => {
+                if let Some(f) = frame {
+                    self.report(
+                        Diagnostic::error("bad-range", format!("a range inside definition `{}` could reach modes it was not given", f.def.name.text), op.span, "range in a definition")
+                            .with_hint("list the operands one by one: a definition acts only on what it is given"),
+                    );
+                    return None;
+                }
                 let ta = self.resolve(a, frame)?;
                 let tb = self.resolve(b, frame)?;
                 match (ta.as_slice(), tb.as_slice()) {
@@ -696,7 +727,7 @@ impl<'a> ChipElab<'a> {
                     }
                     ([Target::Qubit(_)], [Target::Qubit(_)])
                     | ([Target::Mode(_)], [Target::Mode(_)]) => {
-                        self.diags.push(
+                        self.report(
                             Diagnostic::error(
                                 "bad-range",
                                 "a range runs from the upper mode or qubit to the lower one",
@@ -710,7 +741,7 @@ impl<'a> ChipElab<'a> {
                         None
                     }
                     _ => {
-                        self.diags.push(
+                        self.report(
                             Diagnostic::error(
                                 "bad-range",
                                 "a range runs between two modes or between two qubits",
@@ -736,7 +767,7 @@ impl<'a> ChipElab<'a> {
                 None => {
                     let formals: Vec<&str> =
                         f.def.formals.iter().map(|x| x.text.as_str()).collect();
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "undeclared",
                             format!(
@@ -809,7 +840,7 @@ impl<'a> ChipElab<'a> {
                         .with_hint("an operation acts on distinct qubits or modes");
                     let calls = self.call_stack(frame);
                     let d = self.with_call_label(d, &calls);
-                    self.diags.push(d);
+                    self.report(d);
                     return None;
                 }
             }
@@ -829,7 +860,7 @@ impl<'a> ChipElab<'a> {
             if !self.overflowed {
                 self.overflowed = true;
                 let at = calls.first().copied().unwrap_or(span);
-                self.diags.push(
+                self.report(
                     Diagnostic::error("too-many-operations", format!("the chip expands to more than {MAX_OPS} operations"), at, "expands too far")
                         .with_hint("a chip of this size cannot be fabricated; check definitions that call each other many times"),
                 );
@@ -894,7 +925,7 @@ impl<'a> ChipElab<'a> {
                     example_operands(spec.qubits)
                 ));
                 let d = self.with_call_label(d, &calls);
-                self.diags.push(d);
+                self.report(d);
                 return;
             }
             let mut qubits = Vec::new();
@@ -914,7 +945,7 @@ impl<'a> ChipElab<'a> {
                                 _ => "mode-level elements (rotate, split, phase, unitary) act on modes".to_owned(),
                             });
                         let d = self.with_call_label(d, &calls);
-                        self.diags.push(d);
+                        self.report(d);
                         return;
                     }
                 }
@@ -933,7 +964,7 @@ impl<'a> ChipElab<'a> {
             if name == "unitary" {
                 let d = Diagnostic::error("syntax", "`unitary` needs its matrix", a.callee.span.to(operand_span(a)), "no matrix")
                     .with_hint("write `unitary on m0, m1 = [[...], [...]]` or `unitary on m0 ... m3 from \"U.csv\"`");
-                self.diags.push(d);
+                self.report(d);
                 return;
             }
             let kinds: Vec<Kind> = match name {
@@ -961,7 +992,7 @@ impl<'a> ChipElab<'a> {
                         let d = Diagnostic::error("out-of-range", format!("split moves a power fraction between 0 and 1, got {}", expr::fmt_real(vals[0])), q.span, "out of range")
                             .with_hint("split(c) sends the fraction c across: split(0.5) is 50:50, split(2/3) or split(66.7%) two thirds");
                         let d = self.with_call_label(d, &calls);
-                        self.diags.push(d);
+                        self.report(d);
                         return;
                     }
                     OpKind::Split {
@@ -993,9 +1024,26 @@ impl<'a> ChipElab<'a> {
             self.push_op(kind, span, frame, &calls);
             return;
         }
-        if let Some(def) = self.defs.get(name).copied() {
+        let visible = match frame {
+            Some(f) if f.file_level => self.file_defs.get(name).copied(),
+            _ => self.defs.get(name).copied(),
+        };
+        if let Some(def) = visible {
             self.used_defs.insert(name.to_owned());
             self.expand(def, a, span, frame);
+            return;
+        }
+        if let (Some(f), Some(local)) = (frame, self.defs.get(name)) {
+            self.used_defs.insert(name.to_owned());
+            let d = Diagnostic::error(
+                "undeclared",
+                format!("file-level definition `{}` uses `{name}`, which is defined only in chip `{}`", f.def.name.text, self.chip.name.text),
+                a.callee.span,
+                "not visible here",
+            )
+            .with_label(local.name.span, "defined in the chip")
+            .with_hint("a definition at file level may use only definitions at file level: move it to the top level");
+            self.report(d);
             return;
         }
         self.unknown_callee(a, &calls);
@@ -1052,7 +1100,7 @@ impl<'a> ChipElab<'a> {
             d.with_hint("gates: I X Y Z H S T SDG TDG RX RY RZ P CZ CNOT SWAP; elements: rotate split phase unitary")
         };
         let d = self.with_call_label(d, calls);
-        self.diags.push(d);
+        self.report(d);
     }
 
     /// Evaluates the angles of a standard gate.
@@ -1088,7 +1136,7 @@ impl<'a> ChipElab<'a> {
                 ))
             };
             let d = self.with_call_label(d, calls);
-            self.diags.push(d);
+            self.report(d);
             return None;
         }
         let mut out = Vec::new();
@@ -1098,7 +1146,7 @@ impl<'a> ChipElab<'a> {
                 Ok(v) => out.push(v),
                 Err(d) => {
                     let d = self.with_call_label(d, calls);
-                    self.diags.push(d);
+                    self.report(d);
                     ok = false;
                 }
             }
@@ -1131,7 +1179,7 @@ impl<'a> ChipElab<'a> {
             )
             .with_hint(format!("write `{name}({}) on ...`", names.join(", ")));
             let d = self.with_call_label(d, calls);
-            self.diags.push(d);
+            self.report(d);
             return None;
         }
         let mut out = Vec::new();
@@ -1141,7 +1189,7 @@ impl<'a> ChipElab<'a> {
                 Ok(v) => out.push(v),
                 Err(d) => {
                     let d = self.with_call_label(d, calls);
-                    self.diags.push(d);
+                    self.report(d);
                     ok = false;
                 }
             }
@@ -1173,7 +1221,7 @@ impl<'a> ChipElab<'a> {
                         "name its rails `{qn}.0` and `{qn}.1`, or use a qubit gate"
                     ));
                     let d = self.with_call_label(d, calls);
-                    self.diags.push(d);
+                    self.report(d);
                     return None;
                 }
             }
@@ -1195,7 +1243,7 @@ impl<'a> ChipElab<'a> {
                 format!("write `{name}(...) on m0`")
             });
             let d = self.with_call_label(d, calls);
-            self.diags.push(d);
+            self.report(d);
             return None;
         }
         Some(modes)
@@ -1237,7 +1285,7 @@ impl<'a> ChipElab<'a> {
                     )
                     .with_label(operand_span(&fake), format!("{n} mode{}", plural(n)))
                     .with_hint("an N-mode unitary is an N x N matrix, one row per output mode");
-                    self.diags.push(self.with_call_label(d, &calls));
+                    self.report(self.with_call_label(d, &calls));
                     return;
                 }
                 let mut mat = DMatrix::from_element(n, n, Complex64::new(0.0, 0.0));
@@ -1256,7 +1304,7 @@ impl<'a> ChipElab<'a> {
                             format!("{} entries", row.entries.len()),
                         )
                         .with_hint("every row of an N-mode unitary has N entries");
-                        self.diags.push(self.with_call_label(d, &calls));
+                        self.report(self.with_call_label(d, &calls));
                         ok = false;
                         continue;
                     }
@@ -1264,7 +1312,7 @@ impl<'a> ChipElab<'a> {
                         match expr::eval(e, &scope, true) {
                             Ok(v) => mat[(i, j)] = v,
                             Err(d) => {
-                                self.diags.push(self.with_call_label(d, &calls));
+                                self.report(self.with_call_label(d, &calls));
                                 ok = false;
                             }
                         }
@@ -1286,7 +1334,7 @@ impl<'a> ChipElab<'a> {
                             "this file",
                         )
                         .with_hint("the path is relative to the circuit file's folder");
-                        self.diags.push(self.with_call_label(d, &calls));
+                        self.report(self.with_call_label(d, &calls));
                         return;
                     }
                 };
@@ -1305,20 +1353,20 @@ impl<'a> ChipElab<'a> {
                             "wrong size",
                         )
                         .with_label(operand_span(&fake), format!("{n} mode{}", plural(n)));
-                        self.diags.push(self.with_call_label(d, &calls));
+                        self.report(self.with_call_label(d, &calls));
                         return;
                     }
                     Err(e) => {
                         let d = Diagnostic::error("matrix-file", format!("`{path}` line {}: {}", e.line, e.message), *psp, "in this file")
                             .with_hint("one row per line, entries separated by commas, each `re`, `re+imi` or `imi` (e.g. `0.5-0.5i`)");
-                        self.diags.push(self.with_call_label(d, &calls));
+                        self.report(self.with_call_label(d, &calls));
                         return;
                     }
                 }
             }
         };
         if let Some(d) = unitarity_error(&matrix, where_span) {
-            self.diags.push(self.with_call_label(d, &calls));
+            self.report(self.with_call_label(d, &calls));
             return;
         }
         if n > 0
@@ -1346,7 +1394,7 @@ impl<'a> ChipElab<'a> {
             )
             .with_label(def.name.span, "defined here")
             .with_hint("a definition expands into gates once; unroll the repetition by hand");
-            self.diags.push(d);
+            self.report(d);
             return;
         }
         if self.failed_defs.contains(name) || self.overflowed {
@@ -1357,7 +1405,7 @@ impl<'a> ChipElab<'a> {
         }
         if self.stack.len() >= MAX_EXPANSION_DEPTH {
             self.overflowed = true;
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "expansion-too-deep",
                     format!("definitions nest more than {MAX_EXPANSION_DEPTH} deep"),
@@ -1372,7 +1420,7 @@ impl<'a> ChipElab<'a> {
         if self.expansion_steps > MAX_EXPANSION_STEPS {
             self.overflowed = true;
             let at = self.stack.first().map_or(a.callee.span, |(_, s)| *s);
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "too-many-operations",
                     format!("the definitions expand more than {MAX_EXPANSION_STEPS} times"),
@@ -1406,13 +1454,13 @@ impl<'a> ChipElab<'a> {
             } else {
                 format!("write `{name}({}) on ...`", list.join(", "))
             });
-            self.diags.push(self.with_call_label(d, &calls));
+            self.report(self.with_call_label(d, &calls));
             return;
         }
         let mut new_scope = Scope::default();
         let mut ok = true;
         for (p, q) in params.iter().zip(a.args.iter().flatten()) {
-            match expr::quantity(
+            match expr::quantity_with_kind(
                 q,
                 Kind::Number,
                 &scope,
@@ -1422,7 +1470,7 @@ impl<'a> ChipElab<'a> {
                     new_scope.params.insert(p.text.clone(), v);
                 }
                 Err(d) => {
-                    self.diags.push(self.with_call_label(d, &calls));
+                    self.report(self.with_call_label(d, &calls));
                     ok = false;
                 }
             }
@@ -1434,11 +1482,29 @@ impl<'a> ChipElab<'a> {
             return;
         }
         let singles: Vec<(Target, Span)> = ops;
-        let ranged = a
+        if let Some(r) = a
             .operands
             .iter()
-            .any(|o| matches!(o.kind, OperandKind::Range(..)));
-        if singles.len() != def.formals.len() || ranged {
+            .find(|o| matches!(o.kind, OperandKind::Range(..)))
+        {
+            let list: Vec<&str> = def.formals.iter().map(|p| p.text.as_str()).collect();
+            let d = Diagnostic::error(
+                "arity",
+                format!("a range cannot stand for the operands of `{name}`"),
+                r.span,
+                "a range",
+            )
+            .with_label(def.header, "defined here")
+            .with_hint(format!(
+                "name each operand: `{name} on ...` with {} name{} for {}",
+                list.len(),
+                plural(list.len()),
+                list.join(", ")
+            ));
+            self.report(self.with_call_label(d, &calls));
+            return;
+        }
+        if singles.len() != def.formals.len() {
             let list: Vec<&str> = def.formals.iter().map(|p| p.text.as_str()).collect();
             let d = Diagnostic::error(
                 "arity",
@@ -1453,7 +1519,7 @@ impl<'a> ChipElab<'a> {
             )
             .with_label(def.header, "defined here")
             .with_hint(format!(
-                "write `{name}{} on {}` with one name for each{}",
+                "write `{name}{} on {}` with one name for each",
                 match def.params.as_deref() {
                     Some(p) if !p.is_empty() => format!(
                         "({})",
@@ -1465,13 +1531,8 @@ impl<'a> ChipElab<'a> {
                     _ => String::new(),
                 },
                 list.join(", "),
-                if ranged {
-                    "; a range cannot stand for one operand"
-                } else {
-                    ""
-                }
             ));
-            self.diags.push(self.with_call_label(d, &calls));
+            self.report(self.with_call_label(d, &calls));
             return;
         }
         let bindings = def
@@ -1480,8 +1541,13 @@ impl<'a> ChipElab<'a> {
             .zip(singles)
             .map(|(f, (t, _))| (f.text.clone(), t))
             .collect();
+        let file_level = self
+            .file_defs
+            .get(name)
+            .is_some_and(|d| std::ptr::eq(*d, def));
         let inner = Frame {
             def,
+            file_level,
             call: a.callee.span.to(operand_span(a)),
             bindings,
             scope: new_scope,
@@ -1520,7 +1586,7 @@ impl<'a> ChipElab<'a> {
                         "second herald",
                     )
                     .with_label(prev.span, "first here");
-                    self.diags.push(d);
+                    self.report(d);
                     return;
                 }
                 self.used.insert(m);
@@ -1540,7 +1606,7 @@ impl<'a> ChipElab<'a> {
                     }
                     Target::Mode(_) => "a mode",
                 };
-                self.diags.push(
+                self.report(
                     Diagnostic::error(
                         "bad-herald",
                         format!(
@@ -1566,7 +1632,7 @@ impl<'a> ChipElab<'a> {
 
     fn detect(&mut self, ops: &[Operand], span: Span) {
         if let Some(first) = self.detect_span {
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "duplicate",
                     "a chip has one `detect` line",
@@ -1595,7 +1661,7 @@ impl<'a> ChipElab<'a> {
                 }
                 Target::Mode(m) if self.circuit.modes[m].role == ModeRole::Ancilla => {
                     let n = self.circuit.modes[m].name.clone();
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "bad-detect",
                             format!("`{n}` is an ancilla: ancillas are read by `herald`"),
@@ -1633,7 +1699,7 @@ impl<'a> ChipElab<'a> {
                 Some(s) => d.with_hint(format!("did you mean `{s}`?")),
                 None => d.with_hint(format!("requirements: {}", names.join(", "))),
             };
-            self.diags.push(d);
+            self.report(d);
             return;
         };
         let limit = match expr::quantity(
@@ -1644,7 +1710,7 @@ impl<'a> ChipElab<'a> {
         ) {
             Ok(v) => v,
             Err(d) => {
-                self.diags.push(d);
+                self.report(d);
                 return;
             }
         };
@@ -1670,7 +1736,7 @@ impl<'a> ChipElab<'a> {
                 ),
                 _ => format!("{} is not negative", metric.name()),
             });
-            self.diags.push(d);
+            self.report(d);
             return;
         }
         let yield_level = match &r.yield_level {
@@ -1679,14 +1745,14 @@ impl<'a> ChipElab<'a> {
                 match expr::quantity(q, Kind::Fraction, &Scope::default(), "the yield level") {
                     Ok(v) if v > 0.0 && v <= 1.0 => Some(v),
                     Ok(v) => {
-                        self.diags.push(
+                        self.report(
                         Diagnostic::error("out-of-range", format!("a yield level of {} is out of range", expr::fmt_real(v)), q.span, "out of range")
                             .with_hint("a yield is the fraction of chips that must pass: above 0 and at most 100 %"),
                     );
                         return;
                     }
                     Err(d) => {
-                        self.diags.push(d);
+                        self.report(d);
                         return;
                     }
                 }
@@ -1716,11 +1782,15 @@ impl<'a> ChipElab<'a> {
                     Some(s) => d.with_hint(format!("did you mean `{s}`?")),
                     None => d.with_hint(format!("tolerances: {}", keys.join(", "))),
                 };
-                self.diags.push(d);
+                self.report(d);
                 continue;
             };
-            if let Some(first) = seen.insert(key, e.key.span) {
-                self.diags.push(
+            let earlier = seen
+                .insert(key, e.key.span)
+                .or_else(|| self.tolerance_keys.get(*key).copied());
+            self.tolerance_keys.insert((*key).to_owned(), e.key.span);
+            if let Some(first) = earlier {
+                self.report(
                     Diagnostic::error(
                         "duplicate",
                         format!("tolerance `{key}` is set twice"),
@@ -1739,12 +1809,12 @@ impl<'a> ChipElab<'a> {
             ) {
                 Ok(v) => v,
                 Err(d) => {
-                    self.diags.push(d);
+                    self.report(d);
                     continue;
                 }
             };
             if v < 0.0 {
-                self.diags.push(
+                self.report(
                     Diagnostic::error(
                         "out-of-range",
                         format!("tolerance `{key}` is a standard deviation and cannot be negative"),
@@ -1756,7 +1826,7 @@ impl<'a> ChipElab<'a> {
                 continue;
             }
             if *key == "correlation" && v < 1.0 {
-                self.diags.push(
+                self.report(
                     Diagnostic::error("out-of-range", "the roughness correlation length must be at least 1 um", e.value.span, "too short")
                         .with_hint("roughness correlated over less than 1 um is modelled as a loss, not as a coupling error"),
                 );
@@ -1778,7 +1848,7 @@ impl<'a> ChipElab<'a> {
 
     fn band(&mut self, b: &ast::Band, span: Span) {
         if let Some(prev) = self.band_span {
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "duplicate",
                     "a chip has one `band` line",
@@ -1841,7 +1911,7 @@ impl<'a> ChipElab<'a> {
                     return;
                 };
                 if n == 0 {
-                    self.diags.push(Diagnostic::error(
+                    self.report(Diagnostic::error(
                         "out-of-range",
                         "a band needs at least one step",
                         c.span,
@@ -1850,7 +1920,7 @@ impl<'a> ChipElab<'a> {
                     return;
                 }
                 if stop < start {
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "out-of-range",
                             "a band runs from the shorter wavelength to the longer",
@@ -1861,8 +1931,22 @@ impl<'a> ChipElab<'a> {
                     );
                     return;
                 }
+                if n > 1 && stop == start {
+                    self.report(
+                        Diagnostic::error(
+                            "out-of-range",
+                            format!("{n} steps from a wavelength to itself repeat one point"),
+                            b.from.span.to(q.span),
+                            "the same wavelength",
+                        )
+                        .with_hint(
+                            "give two different wavelengths, or write `band 1550 nm` for one",
+                        ),
+                    );
+                    return;
+                }
                 if n == 1 && stop != start {
-                    self.diags.push(
+                    self.report(
                         Diagnostic::error(
                             "out-of-range",
                             "one step cannot span two wavelengths",
@@ -1907,7 +1991,7 @@ impl<'a> ChipElab<'a> {
             let span = first
                 .span
                 .to(self.circuit.heralds.last().map_or(first.span, |h| h.span));
-            self.diags.push(
+            self.report(
                 Diagnostic::error(
                     "photon-count",
                     format!("the heralds expect {heralded} photon{} and the qubits one each ({needed} in all), but the chip launches {launched}", plural(heralded as usize)),

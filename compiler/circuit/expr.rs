@@ -18,7 +18,10 @@ use std::collections::BTreeMap;
 /// already in internal units) besides `pi` and, in matrices, `i`.
 #[derive(Clone, Debug, Default)]
 pub struct Scope {
-    pub params: BTreeMap<String, f64>,
+    /// Each parameter's value in internal units and the kind its argument
+    /// was written with (`None` for a bare number), so that `RY(t)` takes an
+    /// angle given as `30 deg` and `RY(t deg)` on it is refused, not scaled twice.
+    pub params: BTreeMap<String, (f64, Option<Kind>)>,
 }
 
 pub const FUNCTIONS: [&str; 9] = [
@@ -85,15 +88,19 @@ fn eval_value_in(
             }
             Value::bare(Complex64::new(0.0, parse_literal(text, e)?))
         }
-        ExprKind::Name(n) => Value::bare(match n.as_str() {
-            "pi" => real(std::f64::consts::PI),
-            "i" if complex => Complex64::new(0.0, 1.0),
+        ExprKind::Name(n) => match n.as_str() {
+            "pi" => Value::bare(real(std::f64::consts::PI)),
+            "i" if complex => Value::bare(Complex64::new(0.0, 1.0)),
             "i" => return Err(not_here(e)),
             _ => match scope.params.get(n) {
-                Some(v) => real(*v),
+                Some(&(v, kind)) => Value {
+                    z: real(v),
+                    kind,
+                    unit_span: kind.map(|_| e.span),
+                },
                 None => return Err(unknown_name(e, n, scope)),
             },
-        }),
+        },
         ExprKind::WithUnit {
             value,
             unit,
@@ -108,7 +115,10 @@ fn eval_value_in(
                     "second unit",
                 )
                 .with_label(v.unit_span.unwrap_or(value.span), "first unit")
-                .with_hint("write one unit per number, e.g. `30 deg`"));
+                .with_hint(match &value.kind {
+                    ExprKind::Name(n) if scope.params.contains_key(n) => format!("`{n}` already carries the unit it was given with: write `{n}`, not `{n} {}`", unit.as_str()),
+                    _ => "write one unit per number, e.g. `30 deg`".to_owned(),
+                }));
             }
             Value {
                 z: v.z * units::scale(*unit),
@@ -183,11 +193,12 @@ fn eval_value_in(
         ExprKind::Call { func, arg } => {
             let x = eval_value_in(arg, scope, complex, None)?;
             match x.kind {
-                None => {}
-                Some(Kind::Angle) if matches!(func.text.as_str(), "sin" | "cos" | "tan") => {}
+                // Radians and fractions are dimensionless (SI Brochure, 9th
+                // ed., 2019, section 2.3.3): functions take them as numbers.
+                None | Some(Kind::Angle) | Some(Kind::Fraction) => {}
                 Some(k) => {
                     return Err(Diagnostic::error("wrong-unit", format!("{}() takes a plain number, not {}", func.text, k.describe()), x.unit_span.unwrap_or(arg.span), "has a unit")
-                        .with_hint("only sin, cos and tan take an angle with a unit; other functions take plain numbers"));
+                        .with_hint("functions take plain numbers, angles or fractions; a length or a power has no sine or logarithm"));
                 }
             }
             Value::bare(call(&func.text, x.z, e, arg)?)
@@ -385,8 +396,19 @@ pub fn fmt_real(x: f64) -> String {
 /// Evaluates a quantity where a value of `want` kind is expected and returns
 /// it in the internal unit; `what` names the place ("the angle of RY").
 pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f64, Diagnostic> {
+    quantity_with_kind(q, want, scope, what).map(|(v, _)| v)
+}
+
+/// As [`quantity`], also returning the kind the value was written with.
+pub fn quantity_with_kind(
+    q: &Quantity,
+    want: Kind,
+    scope: &Scope,
+    what: &str,
+) -> Result<(f64, Option<Kind>), Diagnostic> {
     let v = eval_value_in(&q.expr, scope, false, Some(want))?;
-    match v.kind {
+    let kind = v.kind;
+    let value = match v.kind {
         None if !want.unit_optional() => Err(Diagnostic::error(
             "missing-unit",
             format!("{what} needs a unit"),
@@ -403,7 +425,8 @@ pub fn quantity(q: &Quantity, want: Kind, scope: &Scope, what: &str) -> Result<f
         )
         .with_hint(format!("{what} takes {}", want.units()))),
         Some(_) => Ok(v.z.re),
-    }
+    }?;
+    Ok((value, kind))
 }
 
 #[cfg(test)]

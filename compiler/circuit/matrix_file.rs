@@ -37,8 +37,9 @@ pub fn parse(text: &str) -> Result<DMatrix<Complex64>, MatrixFileError> {
             return Err(MatrixFileError {
                 line: k + 1,
                 message: format!(
-                    "this row has {} entries, the row on line {} has {}",
+                    "this row has {} entr{}, the row on line {} has {}",
                     row.len(),
+                    if row.len() == 1 { "y" } else { "ies" },
                     first_line,
                     first.len()
                 ),

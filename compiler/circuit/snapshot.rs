@@ -16,9 +16,10 @@ pub fn num(x: f64) -> String {
 }
 
 fn complex(z: Complex64) -> String {
-    if z.im == 0.0 {
+    // Parts that print as zero are left out (`i^2` is -1, not -1+0i).
+    if num(z.im) == "0" {
         num(z.re)
-    } else if z.re == 0.0 {
+    } else if num(z.re) == "0" {
         format!("{}i", num(z.im))
     } else {
         format!(

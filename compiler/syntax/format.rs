@@ -94,7 +94,12 @@ impl Printer<'_> {
     /// The trailing comment on the line where `end` is, if any.
     fn trailing(&mut self, end: usize) -> Option<String> {
         let c = self.comments.get(self.next)?;
-        if c.span.start >= end && !self.text[end..c.span.start].contains('\n') {
+        // Trailing only when nothing but blanks stands between: with two
+        // statements on a line, the comment belongs to the second.
+        if c.span.start >= end
+            && self.text[end..c.span.start].trim().is_empty()
+            && !self.text[end..c.span.start].contains('\n')
+        {
             let t = format!("{MARK}{}", c.text);
             self.last_end = c.span.end;
             self.next += 1;
@@ -537,5 +542,12 @@ mod tests {
         let want = "// head\nchip a { // open\n    H on q // trail\n\n    // own line\n    X on q\n    // before close\n} // after\n// tail\n";
         assert_eq!(fmt(src), want);
         assert_eq!(fmt(want), want);
+    }
+
+    #[test]
+    fn a_trailing_comment_belongs_to_the_last_statement_of_its_line() {
+        let src = "chip c { dualrail a H on a // about H\n}\ndefine t(x) on q{RY(x) on q RZ(x/2) on q} // whole\n";
+        let want = "chip c {\n    dualrail a\n    H on a // about H\n}\n\ndefine t(x) on q {\n    RY(x) on q\n    RZ(x/2) on q\n} // whole\n";
+        assert_eq!(fmt(src), want);
     }
 }

@@ -545,7 +545,7 @@ impl<'t> Builder<'t> {
         let piece = &self.text[span.start..span.end];
         let line_start = self.text[..span.start].rfind('\n').map_or(0, |i| i + 1);
         let after_code = !self.text[line_start..span.start].trim().is_empty();
-        if after_code && is_bare_name(piece) {
+        if after_code && is_bare_name(piece) && !crate::circuit::KEYWORDS.contains(&piece) {
             self.diags.push(
                 Diagnostic::error("syntax", format!("unexpected `{piece}` after the statement"), span, "not part of the statement before it")
                     .with_hint(format!("separate operands with commas, e.g. `CZ on a, {piece}`; a new statement starts with a gate or a keyword")),
@@ -666,6 +666,18 @@ impl<'t> Builder<'t> {
             })
             .unwrap_or_default();
         let (expected, mut hint) = expectation(&rules, &tokens);
+        // `30 deg*2`: a unit closes its product.
+        let before = self.text[..pos].trim_end();
+        if hint.is_none()
+            && matches!(found.0.as_str(), "`*`" | "`/`" | "`^`")
+            && [
+                "nm", "um", "mm", "cm", "rad", "deg", "dB", "dB/cm", "mW", "%",
+            ]
+            .iter()
+            .any(|u| before.ends_with(u))
+        {
+            hint = Some("a unit ends its product: write `2*30 deg`, or put the value with its unit in parentheses, `(30 deg)*2`".to_owned());
+        }
         if hint.is_none() && found.2 && expected.contains("a name") {
             hint = Some(format!(
                 "{} is a keyword and cannot be used as a name",
@@ -798,12 +810,14 @@ fn expectation(rules: &[Rule], tokens: &[String]) -> (String, Option<String>) {
         .filter(|t| STRUCTURAL.contains(&t.as_str()) && !(comparing && t.as_str() == ">"))
         .map(|t| format!("`{t}`"))
         .collect();
-    if tokens
-        .iter()
-        .any(|t| matches!(t.as_str(), "+" | "-" | "*" | "/" | "^"))
-        && rules.iter().all(|r| *r != Rule::unit)
-    {
-        words.push("an operator".into());
+    let ops: Vec<&str> = ["+", "-", "*", "/", "^"]
+        .into_iter()
+        .filter(|o| tokens.iter().any(|t| t == o))
+        .collect();
+    match ops.len() {
+        0 => {}
+        5 => words.push("an operator".into()),
+        _ => words.extend(ops.iter().map(|o| format!("`{o}`"))),
     }
     if tokens.iter().any(|t| super::ast::Unit::parse(t).is_some()) {
         words.push("a unit".into());
