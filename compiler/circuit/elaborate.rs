@@ -567,7 +567,7 @@ impl<'a> ChipElab<'a> {
                     "unknown name",
                 );
                 let known: Vec<&str> = self.names.keys().map(String::as_str).collect();
-                let d = match super::suggest::nearest(&name.text, known.iter().copied()) {
+                let d = match super::suggest::nearest_name(&name.text, known.iter().copied()) {
                     Some(s) => d.with_hint(format!("did you mean `{s}`?")),
                     None if known.is_empty() => {
                         d.with_hint("declare it first, e.g. `dualrail q` or `mode m0`")

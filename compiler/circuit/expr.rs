@@ -312,7 +312,7 @@ fn unknown_name(e: &Expr, n: &str, scope: &Scope) -> Diagnostic {
         e.span,
         "not defined here",
     );
-    match super::suggest::nearest(n, known.iter().copied()) {
+    match super::suggest::nearest_name(n, known.iter().copied()) {
         Some(s) => d.with_hint(format!("did you mean `{s}`?")),
         None if scope.params.is_empty() => d.with_hint("an expression may use numbers, `pi`, and the functions sqrt sin cos tan asin acos atan exp ln"),
         None => d.with_hint(format!("names in scope: {}", known.join(", "))),

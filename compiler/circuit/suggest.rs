@@ -19,9 +19,33 @@ pub fn distance(a: &str, b: &str) -> usize {
 }
 
 /// The closest candidate within a distance that still looks like a typo:
-/// one edit for short words, two for longer ones. Ties go to the first.
+/// one edit for words of up to three letters, two for longer ones. Ties go
+/// to the first.
 pub fn nearest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
     let limit = if word.chars().count() <= 3 { 1 } else { 2 };
+    within(word, candidates, limit)
+}
+
+/// As [`nearest`], for the user's own short names (`a`, `q0`): any
+/// one-letter name is one edit from any other, so for names of one or two
+/// letters only a difference of case counts as a likely typo.
+pub fn nearest_name<'a>(
+    word: &str,
+    candidates: impl IntoIterator<Item = &'a str>,
+) -> Option<&'a str> {
+    let limit = match word.chars().count() {
+        0..=2 => 0,
+        3 => 1,
+        _ => 2,
+    };
+    within(word, candidates, limit)
+}
+
+fn within<'a>(
+    word: &str,
+    candidates: impl IntoIterator<Item = &'a str>,
+    limit: usize,
+) -> Option<&'a str> {
     candidates
         .into_iter()
         .filter(|c| *c != word)
@@ -43,5 +67,8 @@ mod tests {
         assert_eq!(nearest("CNTO", ["CZ", "CNOT", "SWAP"]), Some("CNOT"));
         assert_eq!(nearest("h", ["H", "X"]), Some("H"));
         assert_eq!(nearest("banana", ["CZ", "CNOT"]), None);
+        assert_eq!(nearest("HH", ["H", "CZ"]), Some("H"));
+        assert_eq!(nearest_name("c", ["a", "b"]), None);
+        assert_eq!(nearest_name("qbit", ["qubit", "a"]), Some("qubit"));
     }
 }
