@@ -437,6 +437,7 @@ impl<'t> Builder<'t> {
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::neg => negs.push(span_of(&p).start),
+                Rule::plus => self.bump(),
                 _ => power = Some(self.power(p)),
             }
         }
@@ -464,6 +465,7 @@ impl<'t> Builder<'t> {
             for p in rhs.into_inner() {
                 match p.as_rule() {
                     Rule::neg => negs.push(span_of(&p).start),
+                    Rule::plus => self.bump(),
                     _ => atom = Some(self.atom(p)),
                 }
             }
@@ -868,7 +870,8 @@ fn expectation(rules: &[Rule], tokens: &[String]) -> (String, Option<String>) {
             | Rule::imaginary
             | Rule::paren
             | Rule::call
-            | Rule::neg => "a number or expression",
+            | Rule::neg
+            | Rule::plus => "a number or expression",
             Rule::unit => "a unit",
             Rule::add_op | Rule::mul_op => "an operator",
             Rule::cmp_op => "a comparison (`>=`, `<=`, `>`, `<`)",
