@@ -16,8 +16,8 @@ use trilane::source::{self, Source, Span};
 /// This release has the front end: `check` validates circuit files and
 /// `fmt` formats them. The compile stages follow.
 ///
-/// Exit codes: 0 success; 1 the input has errors (or a requirement fails);
-/// 2 usage error (bad options, unreadable file).
+/// Exit codes: 0 success; 1 the input has errors; 2 usage error (bad
+/// options, unreadable file); 70 internal error (please report it).
 #[derive(Parser)]
 #[command(
     name = "trilane",
@@ -122,6 +122,7 @@ fn io_reason(e: &std::io::Error) -> String {
     match e.kind() {
         std::io::ErrorKind::NotFound => "no such file".into(),
         std::io::ErrorKind::PermissionDenied => "permission denied".into(),
+        std::io::ErrorKind::IsADirectory => "is a folder, not a file".into(),
         _ => e.to_string(),
     }
 }

@@ -128,6 +128,7 @@ pub fn elaborate(ast: &ast::Ast, files: &dyn FileLoader) -> Result<Program, Diag
                 d.name.span,
                 "defined here",
             ));
+            check_unused_body(d, &file_defs, &mut diags);
         }
     }
     if ast.items.iter().all(|i| !matches!(i, Item::Chip(_))) {
@@ -210,7 +211,8 @@ fn register_define<'a>(
                 .with_label(first, "first here"),
             );
         }
-        if p.text == "pi" || p.text == "i" {
+        let is_param = d.params.iter().flatten().any(|x| std::ptr::eq(x, p));
+        if is_param && (p.text == "pi" || p.text == "i") {
             diags.push(Diagnostic::error(
                 "reserved",
                 format!("`{}` is a constant and cannot name a parameter", p.text),
@@ -361,6 +363,11 @@ impl<'a> ChipElab<'a> {
                     span,
                     "defined here",
                 ));
+                if let Some(d) = self.defs.get(&name).copied() {
+                    let mut found = Diagnostics::new();
+                    check_unused_body(d, &self.defs, &mut found);
+                    self.diags.extend(found);
+                }
             }
         }
         self.unused_warnings();
@@ -1073,32 +1080,7 @@ impl<'a> ChipElab<'a> {
     }
 
     fn unknown_callee(&mut self, a: &Apply, calls: &[Span]) {
-        let name = a.callee.text.as_str();
-        let upper = name.chars().next().is_some_and(|c| c.is_ascii_uppercase());
-        let mut candidates: Vec<&str> = gates::GATES.iter().map(|g| g.name).collect();
-        candidates.extend(gates::ELEMENTS.iter().map(|e| e.name));
-        candidates.extend(self.defs.keys().map(String::as_str));
-        let msg = if upper {
-            format!("unknown gate `{name}`")
-        } else {
-            format!("unknown gate, element or definition `{name}`")
-        };
-        let mut d = Diagnostic::error("unknown-gate", msg, a.callee.span, "not known");
-        let exact_case = candidates
-            .iter()
-            .find(|c| c.eq_ignore_ascii_case(name) && **c != name)
-            .copied();
-        d = if let Some(c) = exact_case {
-            d.with_hint(format!("did you mean `{c}`? gate names are upper case, element and definition names lower case"))
-        } else if KEYWORDS.contains(&name) {
-            d.with_hint(format!(
-                "`{name}` is a keyword; this line does not read as a `{name}` statement"
-            ))
-        } else if let Some(s) = super::suggest::nearest(name, candidates.iter().copied()) {
-            d.with_hint(format!("did you mean `{s}`?"))
-        } else {
-            d.with_hint("gates: I X Y Z H S T SDG TDG RX RY RZ P CZ CNOT SWAP; elements: rotate split phase unitary")
-        };
+        let d = unknown_callee(a, self.defs.keys().map(String::as_str));
         let d = self.with_call_label(d, calls);
         self.report(d);
     }
@@ -1139,10 +1121,22 @@ impl<'a> ChipElab<'a> {
             self.report(d);
             return None;
         }
+        self.eval_args(a, |_| Kind::Angle, what, calls, scope)
+    }
+
+    /// Evaluates every argument (reporting each failure); `None` if any failed.
+    fn eval_args(
+        &mut self,
+        a: &Apply,
+        kind: impl Fn(usize) -> Kind,
+        what: impl Fn(usize) -> String,
+        calls: &[Span],
+        scope: &Scope,
+    ) -> Option<Vec<f64>> {
         let mut out = Vec::new();
         let mut ok = true;
         for (i, q) in a.args.iter().flatten().enumerate() {
-            match expr::quantity(q, Kind::Angle, scope, &what(i + 1)) {
+            match expr::quantity(q, kind(i), scope, &what(i + 1)) {
                 Ok(v) => out.push(v),
                 Err(d) => {
                     let d = self.with_call_label(d, calls);
@@ -1182,19 +1176,13 @@ impl<'a> ChipElab<'a> {
             self.report(d);
             return None;
         }
-        let mut out = Vec::new();
-        let mut ok = true;
-        for (i, q) in a.args.iter().flatten().enumerate() {
-            match expr::quantity(q, kinds[i], scope, &format!("`{}` of {name}", names[i])) {
-                Ok(v) => out.push(v),
-                Err(d) => {
-                    let d = self.with_call_label(d, calls);
-                    self.report(d);
-                    ok = false;
-                }
-            }
-        }
-        ok.then_some(out)
+        self.eval_args(
+            a,
+            |i| kinds[i],
+            |i| format!("`{}` of {name}", names[i - 1]),
+            calls,
+            scope,
+        )
     }
 
     fn mode_operands(
@@ -1397,10 +1385,7 @@ impl<'a> ChipElab<'a> {
             self.report(d);
             return;
         }
-        if self.failed_defs.contains(name) || self.overflowed {
-            // Reported once already; expanding it again would only repeat
-            // the errors (and, for definitions that use each other twice
-            // over, take exponential time).
+        if self.overflowed {
             return;
         }
         if self.stack.len() >= MAX_EXPANSION_DEPTH {
@@ -1496,7 +1481,17 @@ impl<'a> ChipElab<'a> {
             )
             .with_label(def.header, "defined here")
             .with_hint(format!(
-                "name each operand: `{name} on ...` with {} name{} for {}",
+                "name each operand: `{name}{} on ...` with {} name{} for {}",
+                match def.params.as_deref() {
+                    Some(p) if !p.is_empty() => format!(
+                        "({})",
+                        p.iter()
+                            .map(|x| x.text.as_str())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    ),
+                    _ => String::new(),
+                },
                 list.len(),
                 plural(list.len()),
                 list.join(", ")
@@ -1533,6 +1528,13 @@ impl<'a> ChipElab<'a> {
                 list.join(", "),
             ));
             self.report(self.with_call_label(d, &calls));
+            return;
+        }
+        if self.failed_defs.contains(name) {
+            // The body failed once already (its errors are reported); the use
+            // itself was checked above. Expanding it again would only repeat
+            // them, and for definitions that use each other twice over take
+            // exponential time.
             return;
         }
         let bindings = def
@@ -1768,7 +1770,6 @@ impl<'a> ChipElab<'a> {
     }
 
     fn tolerance(&mut self, entries: &[ast::TolEntry]) {
-        let mut seen: BTreeMap<&str, Span> = BTreeMap::new();
         for e in entries {
             let Some((key, kind)) = TOLERANCE_KEYS.iter().find(|(k, _)| *k == e.key.text) else {
                 let keys: Vec<&str> = TOLERANCE_KEYS.iter().map(|(k, _)| *k).collect();
@@ -1785,10 +1786,10 @@ impl<'a> ChipElab<'a> {
                 self.report(d);
                 continue;
             };
-            let earlier = seen
-                .insert(key, e.key.span)
-                .or_else(|| self.tolerance_keys.get(*key).copied());
-            self.tolerance_keys.insert((*key).to_owned(), e.key.span);
+            let earlier = self.tolerance_keys.get(*key).copied();
+            self.tolerance_keys
+                .entry((*key).to_owned())
+                .or_insert(e.key.span);
             if let Some(first) = earlier {
                 self.report(
                     Diagnostic::error(
@@ -2030,6 +2031,49 @@ impl<'a> ChipElab<'a> {
                     )
                     .with_hint("remove it, or act on it"),
                 );
+            }
+        }
+    }
+}
+
+fn unknown_callee<'k>(a: &Apply, defs: impl Iterator<Item = &'k str>) -> Diagnostic {
+    let name = a.callee.text.as_str();
+    let upper = name.chars().next().is_some_and(|c| c.is_ascii_uppercase());
+    let mut candidates: Vec<&str> = gates::GATES.iter().map(|g| g.name).collect();
+    candidates.extend(gates::ELEMENTS.iter().map(|e| e.name));
+    candidates.extend(defs);
+    let msg = if upper {
+        format!("unknown gate `{name}`")
+    } else {
+        format!("unknown gate, element or definition `{name}`")
+    };
+    let d = Diagnostic::error("unknown-gate", msg, a.callee.span, "not known");
+    let exact_case = candidates
+        .iter()
+        .find(|c| c.eq_ignore_ascii_case(name) && **c != name)
+        .copied();
+    if let Some(c) = exact_case {
+        d.with_hint(format!(
+            "did you mean `{c}`? gate names are upper case, element and definition names lower case"
+        ))
+    } else if let Some(s) = super::suggest::nearest(name, candidates.iter().copied()) {
+        d.with_hint(format!("did you mean `{s}`?"))
+    } else {
+        d.with_hint("gates: I X Y Z H S T SDG TDG RX RY RZ P CZ CNOT SWAP; elements: rotate split phase unitary")
+    }
+}
+
+/// A definition no chip uses is never expanded; its body is still checked
+/// for names that are neither gates, elements nor definitions it can see.
+fn check_unused_body(def: &Define, visible: &BTreeMap<String, &Define>, diags: &mut Diagnostics) {
+    for s in &def.body {
+        if let StmtKind::Apply(a) = &s.kind {
+            let n = a.callee.text.as_str();
+            if gates::gate_spec(n).is_none()
+                && gates::element_spec(n).is_none()
+                && !visible.contains_key(n)
+            {
+                diags.push(unknown_callee(a, visible.keys().map(String::as_str)));
             }
         }
     }

@@ -392,20 +392,7 @@ fn statement_lines(k: &StmtKind, depth: usize) -> Vec<String> {
             match &u.source {
                 MatrixSource::File { path, .. } => format!("{head} from \"{path}\""),
                 MatrixSource::Literal(m) => {
-                    let rows: Vec<String> = m
-                        .rows
-                        .iter()
-                        .map(|r| {
-                            format!(
-                                "[{}]",
-                                r.entries
-                                    .iter()
-                                    .map(expr_text)
-                                    .collect::<Vec<_>>()
-                                    .join(", ")
-                            )
-                        })
-                        .collect();
+                    let rows: Vec<String> = m.rows.iter().map(row_text).collect();
                     let _ = depth;
                     format!("{head} = [{}]", rows.join(", "))
                 }

@@ -550,7 +550,7 @@ impl<'t> Builder<'t> {
         if after_code && is_bare_name(piece) && !crate::circuit::KEYWORDS.contains(&piece) {
             self.diags.push(
                 Diagnostic::error("syntax", format!("unexpected `{piece}` after the statement"), span, "not part of the statement before it")
-                    .with_hint(format!("separate operands with commas, e.g. `CZ on a, {piece}`; a new statement starts with a gate or a keyword")),
+                    .with_hint("separate names with commas (`dualrail a, b`, `CZ on a, b`); a new statement starts with a gate or a keyword"),
             );
             return;
         }
@@ -679,6 +679,17 @@ impl<'t> Builder<'t> {
             .any(|u| before.ends_with(u))
         {
             hint = Some("a unit ends its product: write `2*30 deg`, or put the value with its unit in parentheses, `(30 deg)*2`".to_owned());
+        }
+        if hint.is_none()
+            && matches!(found.0.as_str(), "`photon`" | "`photons`")
+            && expected.contains("a statement")
+        {
+            hint = Some("photon numbers stand alone in `herald h = 1`; the words `photon`/`photons` belong to `ancilla` and `launch`".to_owned());
+        } else if hint.is_none() && found.2 && expected.contains("a statement") {
+            hint = Some(format!(
+                "{} cannot start a statement: the statement before it ended earlier than it should, check it",
+                found.0
+            ));
         }
         if hint.is_none() && found.2 && expected.contains("a name") {
             hint = Some(format!(
