@@ -14,6 +14,7 @@
 
 pub mod circuit;
 pub mod diagnostic;
+pub mod optics;
 pub mod source;
 pub mod syntax;
 
