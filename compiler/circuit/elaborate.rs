@@ -1482,16 +1482,7 @@ impl<'a> ChipElab<'a> {
             .with_label(def.header, "defined here")
             .with_hint(format!(
                 "name each operand: `{name}{} on ...` with {} name{} for {}",
-                match def.params.as_deref() {
-                    Some(p) if !p.is_empty() => format!(
-                        "({})",
-                        p.iter()
-                            .map(|x| x.text.as_str())
-                            .collect::<Vec<_>>()
-                            .join(", ")
-                    ),
-                    _ => String::new(),
-                },
+                crate::syntax::format::params_text(def),
                 list.len(),
                 plural(list.len()),
                 list.join(", ")
@@ -1515,16 +1506,7 @@ impl<'a> ChipElab<'a> {
             .with_label(def.header, "defined here")
             .with_hint(format!(
                 "write `{name}{} on {}` with one name for each",
-                match def.params.as_deref() {
-                    Some(p) if !p.is_empty() => format!(
-                        "({})",
-                        p.iter()
-                            .map(|x| x.text.as_str())
-                            .collect::<Vec<_>>()
-                            .join(", ")
-                    ),
-                    _ => String::new(),
-                },
+                crate::syntax::format::params_text(def),
                 list.join(", "),
             ));
             self.report(self.with_call_label(d, &calls));

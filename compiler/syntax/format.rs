@@ -301,8 +301,10 @@ fn align_trailing_comments(text: &str) -> String {
     out.join("\n")
 }
 
-fn define_header(d: &Define) -> String {
-    let params = match &d.params {
+/// A definition's parameter list as written canonically: `(t, c)`, or
+/// nothing when it has none.
+pub fn params_text(d: &Define) -> String {
+    match &d.params {
         Some(p) if !p.is_empty() => format!(
             "({})",
             p.iter()
@@ -311,7 +313,11 @@ fn define_header(d: &Define) -> String {
                 .join(", ")
         ),
         _ => String::new(),
-    };
+    }
+}
+
+fn define_header(d: &Define) -> String {
+    let params = params_text(d);
     let formals: Vec<&str> = d.formals.iter().map(|n| n.text.as_str()).collect();
     format!(
         "define {}{} on {} {{",

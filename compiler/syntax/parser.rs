@@ -4,6 +4,11 @@
 //! fall into a `recover` node; each such line is parsed again on its own so
 //! that its error names what was expected there. All syntax errors of a file
 //! are so reported in one run.
+//!
+//! The `unwrap()`s on `into_inner().next()` below follow the shape of a pair
+//! that the grammar guarantees once the pair exists (a `chip` pair always
+//! holds its name, an `apply` its callee); they are not input-dependent, and
+//! the property tests drive the builder with random and mutated files.
 
 use super::ast::*;
 use crate::diagnostic::{Diagnostic, Diagnostics};
