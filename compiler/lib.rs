@@ -13,8 +13,10 @@
 //! the file system, and diagnostics are data until `diagnostic::render`.
 
 pub mod circuit;
+pub mod compile;
 pub mod diagnostic;
 pub mod optics;
+pub mod report;
 pub mod source;
 pub mod syntax;
 

@@ -13,8 +13,9 @@ use trilane::source::{self, Source, Span};
 /// trilane: a compiler from dual-rail photonic quantum circuits to chips of
 /// fabrication-robust three-waveguide cells.
 ///
-/// This release has the front end: `check` validates circuit files and
-/// `fmt` formats them. The compile stages follow.
+/// This release has the front end (`check` validates circuit files, `fmt`
+/// formats them) and the linear-optical core (`simulate` computes what a
+/// chip's network does). The chip build follows.
 ///
 /// Exit codes: 0 success; 1 the input has errors; 2 usage error (bad
 /// options, unreadable file); 70 internal error (please report it).
@@ -24,7 +25,7 @@ use trilane::source::{self, Source, Span};
     version,
     about,
     long_about,
-    after_help = "Start with: trilane check circuits/bell_pair.trl\nLanguage reference: docs/language.md"
+    after_help = "Start with: trilane check circuits/bell_pair.trl\n            trilane simulate circuits/bell_pair.trl\nLanguage reference: docs/language.md"
 )]
 struct Cli {
     #[command(subcommand)]
@@ -65,6 +66,33 @@ enum Command {
         #[arg(long, conflicts_with = "check")]
         stdout: bool,
     },
+    /// What the ideal network of a chip does: its logical map, success and
+    /// fidelity, and the output statistics of the launch state
+    ///
+    /// The network is the lossless scheme as written: gates become their
+    /// linear-optical networks (post-selected CZ with two vacuum ancilla
+    /// modes, `CZ heralded` with two ancilla photons), and everything is
+    /// computed from the whole network's transfer matrix by permanents.
+    /// Warnings go to stderr, the report to stdout.
+    Simulate {
+        /// Circuit file (.trl)
+        #[arg(value_name = "FILE")]
+        file: PathBuf,
+        /// The chip to simulate, when the file holds several
+        #[arg(long, value_name = "NAME")]
+        chip: Option<String>,
+        /// Replace the launch state: qubits take 0 or 1, modes a photon number
+        #[arg(long, value_name = "a=1,b=0,m0=2")]
+        launch: Option<String>,
+        /// Give the amplitude and probability of this one detection pattern
+        /// (photons per mode, in the order of the modes list) instead of the
+        /// whole distribution; for photon numbers where that is out of reach
+        #[arg(long, value_name = "1,0,2,...")]
+        output: Option<String>,
+        /// Print one JSON document on stdout instead of the table
+        #[arg(long)]
+        json: bool,
+    },
 }
 
 /// The front end recurses over expressions (bounded by the parser's
@@ -83,6 +111,19 @@ fn main() -> ExitCode {
                 check,
                 stdout,
             } => fmt(&files, check, stdout),
+            Command::Simulate {
+                file,
+                chip,
+                launch,
+                output,
+                json,
+            } => simulate(
+                &file,
+                chip.as_deref(),
+                launch.as_deref(),
+                output.as_deref(),
+                json,
+            ),
         });
     let code = match work.map(|h| h.join()) {
         Ok(Ok(code)) => code,
@@ -158,37 +199,7 @@ struct JsonFile {
     #[serde(skip_serializing_if = "Option::is_none")]
     error: Option<String>,
     chips: Vec<String>,
-    diagnostics: Vec<JsonDiagnostic>,
-}
-
-#[derive(Serialize)]
-struct JsonDiagnostic {
-    severity: &'static str,
-    code: &'static str,
-    message: String,
-    line: usize,
-    column: usize,
-    end_line: usize,
-    end_column: usize,
-    label: String,
-    hint: Option<String>,
-}
-
-fn json_diag(d: &Diagnostic, src: &Source) -> JsonDiagnostic {
-    let sp = d.span();
-    let (line, column) = src.line_col(sp.start);
-    let (end_line, end_column) = src.line_col(sp.end);
-    JsonDiagnostic {
-        severity: d.severity.as_str(),
-        code: d.code,
-        message: d.message.clone(),
-        line,
-        column,
-        end_line,
-        end_column,
-        label: d.labels.first().map(|l| l.text.clone()).unwrap_or_default(),
-        hint: d.hint.clone(),
-    }
+    diagnostics: Vec<trilane::report::JsonDiagnostic>,
 }
 
 fn check(files: &[PathBuf], json: bool, ir: bool) -> u8 {
@@ -237,7 +248,10 @@ fn check(files: &[PathBuf], json: bool, ir: bool) -> u8 {
                     .iter()
                     .flat_map(|p| p.circuits.iter().map(|c| c.name.clone()))
                     .collect(),
-                diagnostics: diags.iter().map(|d| json_diag(d, &src)).collect(),
+                diagnostics: diags
+                    .iter()
+                    .map(|d| trilane::report::json_diagnostic(d, &src))
+                    .collect(),
             });
             continue;
         }
@@ -373,4 +387,113 @@ fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
         let _ = std::fs::remove_file(&tmp);
     }
     result
+}
+
+/// Loads one file through the front end and picks the chip: diagnostics go
+/// to stderr; `Err` is the exit code.
+fn load_chip(path: &Path, chip: Option<&str>) -> Result<(Source, trilane::circuit::Circuit), u8> {
+    let style = style();
+    let (src, bad) = read_source(path).map_err(|msg| {
+        eprintln!("error: {msg}");
+        2u8
+    })?;
+    if let Some(d) = bad {
+        eprint!("{}", diagnostic::render(&d, &src, style));
+        return Err(1);
+    }
+    let loader = FolderLoader {
+        dir: path.parent().map(Path::to_path_buf).unwrap_or_default(),
+    };
+    let program = match trilane::check(&src, &loader) {
+        Ok(p) => p,
+        Err(d) => {
+            eprint!("{}", diagnostic::render_all(&d, &src, style));
+            let n = d.error_count();
+            eprintln!("{}: {} error{}", src.name, n, s(n));
+            return Err(1);
+        }
+    };
+    eprint!("{}", diagnostic::render_all(&program.warnings, &src, style));
+    let names: Vec<&str> = program.circuits.iter().map(|c| c.name.as_str()).collect();
+    let picked = match chip {
+        Some(want) => program
+            .circuits
+            .iter()
+            .find(|c| c.name == want)
+            .ok_or_else(|| {
+                let hint = trilane::circuit::suggest::nearest(want, names.iter().copied())
+                    .map(|n| format!(" (did you mean `{n}`?)"))
+                    .unwrap_or_default();
+                eprintln!(
+                    "error: {} has no chip `{want}`{hint}; its chips: {}",
+                    src.name,
+                    names.join(", ")
+                );
+                2u8
+            })?,
+        None if program.circuits.len() == 1 => &program.circuits[0],
+        None if program.circuits.is_empty() => {
+            eprintln!("error: {} holds no chip", src.name);
+            return Err(1);
+        }
+        None => {
+            eprintln!(
+                "error: {} holds {} chips; choose one with --chip NAME: {}",
+                src.name,
+                names.len(),
+                names.join(", ")
+            );
+            return Err(2);
+        }
+    };
+    let circuit = picked.clone();
+    Ok((src, circuit))
+}
+
+fn simulate(
+    path: &Path,
+    chip: Option<&str>,
+    launch: Option<&str>,
+    output: Option<&str>,
+    json: bool,
+) -> u8 {
+    use trilane::optics::simulate as sim;
+    let (src, circuit) = match load_chip(path, chip) {
+        Ok(x) => x,
+        Err(code) => return code,
+    };
+    let net = trilane::optics::network(&circuit);
+    let launch = match launch.map(|t| sim::parse_launch(&net, t)).transpose() {
+        Ok(l) => l,
+        Err(msg) => {
+            eprintln!("error: --launch: {msg}");
+            return 2;
+        }
+    };
+    let output = match output.map(|t| sim::parse_output(&net, t)).transpose() {
+        Ok(o) => o,
+        Err(msg) => {
+            eprintln!("error: {msg}");
+            return 2;
+        }
+    };
+    let result = match sim::simulate(&circuit, launch.as_deref(), output.as_deref()) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("error: chip {}: {e}", circuit.name);
+            return 1;
+        }
+    };
+    eprint!(
+        "{}",
+        diagnostic::render_all(&Diagnostics(result.warnings.clone()), &src, style())
+    );
+    let text = if json {
+        let doc = trilane::report::simulate::to_json(&result, &src);
+        serde_json::to_string_pretty(&doc).expect("the report serialises") + "\n"
+    } else {
+        trilane::report::simulate::to_text(&result, &circuit, &src)
+    };
+    let _ = std::io::stdout().lock().write_all(text.as_bytes());
+    0
 }

@@ -899,6 +899,23 @@ impl<'a> ChipElab<'a> {
         let calls: Vec<Span> = self.call_stack(frame);
         let scope = frame.map(|f| f.scope.clone()).unwrap_or_default();
         let name = a.callee.text.as_str();
+        if let Some(word) = a.heralded
+            && !matches!(name, "CZ" | "CNOT")
+        {
+            let d = Diagnostic::error(
+                "not-heralded",
+                format!(
+                    "`heralded` names the ancilla-photon scheme of CZ and CNOT; `{name}` has none"
+                ),
+                word,
+                "only after CZ or CNOT",
+            )
+            .with_hint("remove `heralded`");
+            let d = self.with_call_label(d, &calls);
+            self.report(d);
+            let _ = self.operands(&a.operands, frame);
+            return;
+        }
         if let Some(spec) = gates::gate_spec(name) {
             let angles = self.args(a, spec.angles, &calls, &scope, |i| {
                 format!(
@@ -957,7 +974,10 @@ impl<'a> ChipElab<'a> {
                     }
                 }
             }
-            let gate = QubitGate::from_name(name, &angles).expect("spec names a gate");
+            let mut gate = QubitGate::from_name(name, &angles).expect("spec names a gate");
+            if a.heralded.is_some() {
+                gate = gate.heralded().expect("checked above: CZ or CNOT");
+            }
             // `I` is written on purpose (an idle slot); an angle that makes
             // a rotation trivial is more likely a slip.
             if gate != QubitGate::I && gates::is_identity_up_to_phase(&gate.matrix(), 1e-12) {
@@ -1250,6 +1270,7 @@ impl<'a> ChipElab<'a> {
             },
             args: None,
             args_span: None,
+            heralded: None,
             operands: u.operands.clone(),
         };
         let Some(modes) = self.mode_operands("unitary", &ops, 0, &fake, &calls) else {

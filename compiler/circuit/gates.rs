@@ -26,8 +26,16 @@ pub enum QubitGate {
     Ry(f64),
     Rz(f64),
     P(f64),
+    /// Post-selected CZ (Ralph et al. 2002): succeeds 1 time in 9, seen only
+    /// at the qubit outputs.
     Cz,
+    /// Heralded CZ (Knill 2002): two ancilla photons and two detectors
+    /// announce success, 2 times in 27. Written `CZ heralded`.
+    CzHeralded,
+    /// CZ between Hadamards on the target; post-selected.
     Cnot,
+    /// CNOT with the heralded CZ inside. Written `CNOT heralded`.
+    CnotHeralded,
     Swap,
 }
 
@@ -217,9 +225,26 @@ impl QubitGate {
             QubitGate::Rz(_) => "RZ",
             QubitGate::P(_) => "P",
             QubitGate::Cz => "CZ",
+            QubitGate::CzHeralded => "CZ heralded",
             QubitGate::Cnot => "CNOT",
+            QubitGate::CnotHeralded => "CNOT heralded",
             QubitGate::Swap => "SWAP",
         }
+    }
+
+    /// The heralded scheme of an entangling gate, if it has one.
+    pub fn heralded(self) -> Option<QubitGate> {
+        match self {
+            QubitGate::Cz => Some(QubitGate::CzHeralded),
+            QubitGate::Cnot => Some(QubitGate::CnotHeralded),
+            _ => None,
+        }
+    }
+
+    /// Whether the gate's linear-optical scheme needs post-selection on one
+    /// photon per qubit at the end (vacuum ancillas, no herald).
+    pub fn is_post_selected(self) -> bool {
+        matches!(self, QubitGate::Cz | QubitGate::Cnot)
     }
 
     pub fn angle(&self) -> Option<f64> {
@@ -231,7 +256,11 @@ impl QubitGate {
 
     pub fn qubit_count(&self) -> usize {
         match self {
-            QubitGate::Cz | QubitGate::Cnot | QubitGate::Swap => 2,
+            QubitGate::Cz
+            | QubitGate::CzHeralded
+            | QubitGate::Cnot
+            | QubitGate::CnotHeralded
+            | QubitGate::Swap => 2,
             _ => 1,
         }
     }
@@ -278,10 +307,10 @@ impl QubitGate {
                 Complex64::from_polar(1.0, t / 2.0),
             ),
             QubitGate::P(t) => m2(o, z, z, Complex64::from_polar(1.0, t)),
-            QubitGate::Cz => {
+            QubitGate::Cz | QubitGate::CzHeralded => {
                 DMatrix::from_diagonal(&nalgebra::DVector::from_vec(vec![o, o, o, -o]))
             }
-            QubitGate::Cnot => {
+            QubitGate::Cnot | QubitGate::CnotHeralded => {
                 let mut m = DMatrix::from_element(4, 4, z);
                 m[(0, 0)] = o;
                 m[(1, 1)] = o;

@@ -55,6 +55,7 @@ mod validate;
 
 pub use elaborate::{FileLoader, KEYWORDS, NoFiles, Program, elaborate, unitarity_error};
 pub use gates::QubitGate;
+pub use snapshot::num as snapshot_num;
 pub use validate::validate;
 
 use crate::source::Span;

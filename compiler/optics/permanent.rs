@@ -114,7 +114,7 @@ pub enum PermanentError {
 }
 
 /// `2^(n-1) * n`, as a float so that it cannot overflow.
-fn glynn_steps(n: usize) -> f64 {
+pub fn glynn_steps(n: usize) -> f64 {
     let exp = i32::try_from(n.saturating_sub(1)).unwrap_or(i32::MAX);
     2f64.powi(exp) * n as f64
 }

@@ -109,6 +109,9 @@ pub struct Apply {
     /// `None` when no parentheses were written; `Some(vec![])` for `()`.
     pub args: Option<Vec<Quantity>>,
     pub args_span: Option<Span>,
+    /// The word `heralded` after the callee (`CZ heralded on a, b`): the
+    /// ancilla-photon scheme of an entangling gate.
+    pub heralded: Option<Span>,
     pub operands: Vec<Operand>,
 }
 
@@ -488,6 +491,9 @@ impl ClearSpans for Apply {
         self.callee.clear_spans();
         self.args.clear_spans();
         self.args_span = None;
+        if self.heralded.is_some() {
+            self.heralded = Some(Span::default());
+        }
         self.operands.clear_spans();
         if self.args.as_ref().is_some_and(Vec::is_empty) {
             self.args = None;

@@ -391,7 +391,18 @@ fn statement_lines(k: &StmtKind, depth: usize) -> Vec<String> {
                 ),
                 _ => String::new(),
             };
-            format!("{}{} on {}", a.callee.text, args, operands(&a.operands))
+            let scheme = if a.heralded.is_some() {
+                " heralded"
+            } else {
+                ""
+            };
+            format!(
+                "{}{}{} on {}",
+                a.callee.text,
+                args,
+                scheme,
+                operands(&a.operands)
+            )
         }
         StmtKind::Unitary(u) => {
             let head = format!("unitary on {}", operands(&u.operands));

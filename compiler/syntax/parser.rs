@@ -232,6 +232,7 @@ impl<'t> Builder<'t> {
                 let callee = name(inner.next().unwrap());
                 let mut args = None;
                 let mut args_span = None;
+                let mut heralded = None;
                 let mut operands = Vec::new();
                 for p in inner {
                     match p.as_rule() {
@@ -239,6 +240,7 @@ impl<'t> Builder<'t> {
                             args_span = Some(span_of(&p));
                             args = Some(p.into_inner().filter_map(|q| self.quantity(q)).collect());
                         }
+                        Rule::heralded => heralded = Some(span_of(&p)),
                         Rule::operand_list => operands = self.operands(p),
                         _ => {}
                     }
@@ -247,6 +249,7 @@ impl<'t> Builder<'t> {
                     callee,
                     args,
                     args_span,
+                    heralded,
                     operands,
                 })
             }
@@ -840,8 +843,14 @@ fn expectation(rules: &[Rule], tokens: &[String]) -> (String, Option<String>) {
     if tokens.iter().any(|t| super::ast::Unit::parse(t).is_some()) {
         words.push("a unit".into());
     }
+    // `heralded` is an optional word that is almost never the one missing.
+    let rules: Vec<Rule> = rules
+        .iter()
+        .copied()
+        .filter(|r| *r != Rule::heralded)
+        .collect();
     let rules: Vec<Rule> = if tokens.is_empty() {
-        rules.to_vec()
+        rules
     } else {
         rules
             .iter()
