@@ -227,3 +227,136 @@ fn help_reads_well() {
     let s = String::from_utf8(out.stdout).unwrap();
     assert!(s.contains("--json") && s.contains("FILE"), "{s}");
 }
+
+fn simulate_json(args: &[&str]) -> serde_json::Value {
+    let out = trilane().arg("simulate").args(args).arg("--json").output().unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+#[test]
+fn every_example_simulates() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("circuits");
+    for (file, chip) in [
+        ("bell_pair.trl", None),
+        ("ghz3.trl", None),
+        ("splitter_calibration.trl", None),
+        ("interferometer4.trl", Some("dft4_adjacent")),
+        ("interferometer4.trl", Some("dft4_cyclic")),
+        ("heralded_cz.trl", None),
+        ("definitions.trl", None),
+        ("two_processes.trl", Some("prep_preset")),
+    ] {
+        let path = dir.join(file);
+        let mut args = vec![path.to_str().unwrap()];
+        if let Some(c) = chip {
+            args.extend(["--chip", c]);
+        }
+        let doc = simulate_json(&args);
+        let total = doc["total_probability"].as_f64().unwrap();
+        // A lossless network keeps every photon.
+        assert!((total - 1.0).abs() < 1e-12, "{file}: total {total}");
+        if let Some(f) = doc["process_fidelity"].as_f64() {
+            assert!(f > 1.0 - 1e-9, "{file}: the example's ideal network does what it says ({f})");
+        }
+    }
+}
+
+#[test]
+fn simulate_json_has_the_documented_shape() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = write(dir.path(), "g.trl", GOOD);
+    let doc = simulate_json(&[f.to_str().unwrap()]);
+    for key in [
+        "chip",
+        "qubits",
+        "modes",
+        "mode_unitary",
+        "logical_basis",
+        "logical_map",
+        "success_probability",
+        "process_fidelity",
+        "fidelity_kind",
+        "warnings",
+        "distribution",
+    ] {
+        assert!(doc.get(key).is_some(), "missing {key}");
+    }
+    assert_eq!(doc["modes"].as_array().unwrap().len(), 6);
+    assert_eq!(doc["mode_unitary"]["re"].as_array().unwrap().len(), 6);
+    assert_eq!(doc["logical_basis"][3], "11");
+    assert_eq!(doc["fidelity_kind"], "process");
+    // Ralph et al. (2002): success 1/9.
+    assert!((doc["success_probability"].as_f64().unwrap() - 1.0 / 9.0).abs() < 1e-12);
+    let first = &doc["distribution"][0];
+    assert!(first["occupation"].is_array() && first.get("logical").is_some());
+}
+
+#[test]
+fn simulate_launch_and_output() {
+    let dir = tempfile::tempdir().unwrap();
+    let f = write(
+        dir.path(),
+        "hom.trl",
+        "chip hom {\n    mode m0, m1\n    launch m0 = 1 photon\n    split(0.5) on m0, m1\n}\n",
+    );
+    let path = f.to_str().unwrap();
+    // Hong, Ou & Mandel (1987): with both inputs lit, no coincidences at 50:50.
+    let doc = simulate_json(&[path, "--launch", "m1=1", "--output", "1,1"]);
+    assert!(doc["probability"].as_f64().unwrap() < 1e-30);
+    assert!(doc.get("distribution").is_none());
+    let doc = simulate_json(&[path, "--launch", "m1=1", "--output", "2,0"]);
+    assert!((doc["probability"].as_f64().unwrap() - 0.5).abs() < 1e-15);
+    // Usage errors: exit 2, a message naming what is wrong.
+    let out = trilane()
+        .args(["simulate", path, "--output", "1,0,0"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("m0 m1"), "{err}");
+    let out = trilane()
+        .args(["simulate", path, "--launch", "m3=1"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("did you mean `m0`"));
+    // Several chips need --chip; a wrong name gets the list.
+    let two = write(
+        dir.path(),
+        "two.trl",
+        "chip one {\n    mode m\n}\nchip two {\n    mode m\n}\n",
+    );
+    let out = trilane().arg("simulate").arg(&two).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("one, two"));
+    // Input errors: exit 1, nothing on stdout.
+    let bad = write(dir.path(), "bad.trl", BAD);
+    let out = trilane().arg("simulate").arg(&bad).output().unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    assert!(out.stdout.is_empty());
+}
+
+#[test]
+fn simulate_refuses_what_it_cannot_finish() {
+    // 12 photons in 40 modes: about 1.5e10 patterns, refused at once with a
+    // pointer to --output.
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("chip big {\n    mode m0");
+    for i in 1..40 {
+        text.push_str(&format!(", m{i}"));
+    }
+    text.push_str("\n    launch ");
+    let lits: Vec<String> = (0..12).map(|i| format!("m{i} = 1 photon")).collect();
+    text.push_str(&lits.join(", "));
+    text.push_str("\n    split(0.5) on m0, m1\n}\n");
+    let f = write(dir.path(), "big.trl", &text);
+    let out = trilane().arg("simulate").arg(&f).output().unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("--output"), "{err}");
+}
