@@ -122,15 +122,27 @@ pub fn logical_map_of(
         return Err(LogicalError::TooManyQubits { qubits: n });
     }
     let is_rail = |m: &super::network::NetworkMode| matches!(m.role, ModeRole::Rail { .. });
+    // Modes that no element ever links to a qubit's rails are a separate
+    // experiment on the same chip: their photons neither enter nor leave the
+    // qubits' network, so they are left out of the conditioning.
+    let linked = linked_to_rails(net);
     let input_fixed: Vec<u32> = net
         .modes
         .iter()
-        .map(|m| if is_rail(m) { 0 } else { m.photons_in })
+        .zip(&linked)
+        .map(|(m, &l)| if is_rail(m) || !l { 0 } else { m.photons_in })
         .collect();
     let output_fixed: Vec<u32> = net
         .modes
         .iter()
-        .map(|m| if is_rail(m) { 0 } else { m.herald.unwrap_or(0) })
+        .zip(&linked)
+        .map(|(m, &l)| {
+            if is_rail(m) || !l {
+                0
+            } else {
+                m.herald.unwrap_or(0)
+            }
+        })
         .collect();
     let launched: u32 = input_fixed.iter().sum::<u32>() + n as u32;
     let accounted: u32 = output_fixed.iter().sum::<u32>() + n as u32;
@@ -196,6 +208,37 @@ pub fn logical_map_of(
     })
 }
 
+/// Which modes some chain of elements connects to a qubit rail (a
+/// union-find over the elements' modes).
+pub fn linked_to_rails(net: &ModeNetwork) -> Vec<bool> {
+    let n = net.modes.len();
+    let mut parent: Vec<usize> = (0..n).collect();
+    fn root(p: &mut [usize], mut i: usize) -> usize {
+        while p[i] != i {
+            p[i] = p[p[i]];
+            i = p[i];
+        }
+        i
+    }
+    for e in &net.elements {
+        if let Some((&first, rest)) = e.modes.split_first() {
+            for &m in rest {
+                let (a, b) = (root(&mut parent, first), root(&mut parent, m));
+                parent[a] = b;
+            }
+        }
+    }
+    let mut rail_roots = std::collections::BTreeSet::new();
+    for q in &net.qubits {
+        for r in q.rails {
+            rail_roots.insert(root(&mut parent, r));
+        }
+    }
+    (0..n)
+        .map(|m| rail_roots.contains(&root(&mut parent, m)))
+        .collect()
+}
+
 fn trace_inner(a: &DMatrix<Complex64>, b: &DMatrix<Complex64>) -> Complex64 {
     // Tr(a^dag b) = sum conj(a_ij) b_ij
     a.iter().zip(b.iter()).map(|(x, y)| x.conj() * y).sum()
@@ -213,7 +256,8 @@ pub fn process_fidelity(target: &DMatrix<Complex64>, v: &DMatrix<Complex64>) -> 
     if norm <= 0.0 {
         return 0.0;
     }
-    trace_inner(target, v).norm_sqr() / norm
+    // Rounding can lift a perfect map a few ulps above 1.
+    (trace_inner(target, v).norm_sqr() / norm).min(1.0)
 }
 
 /// `F_detect`: the process fidelity maximised over diagonal output phases.
@@ -230,7 +274,7 @@ pub fn detect_fidelity(target: &DMatrix<Complex64>, v: &DMatrix<Complex64>) -> f
                 .norm()
         })
         .sum();
-    s * s / norm
+    (s * s / norm).min(1.0)
 }
 
 /// `(d F + 1) / (d + 1)` (Nielsen 2002).
@@ -252,7 +296,8 @@ pub fn mode_fidelity(target: &DMatrix<Complex64>, u: &DMatrix<Complex64>) -> (f6
 #[derive(Clone, Debug, PartialEq)]
 pub enum Target {
     /// The product of its gates (mode elements that act within one qubit's
-    /// rails count as single-qubit gates).
+    /// rails count as single-qubit gates; elements on free modes alone are
+    /// not part of the qubits' network).
     Gates(DMatrix<Complex64>),
     /// Some element leaves the qubits' rails or mixes two qubits, so the
     /// circuit says no logical gate: the target is the unitary closest to the
@@ -300,6 +345,12 @@ pub fn gate_target(circuit: &Circuit) -> Option<DMatrix<Complex64>> {
         _ => None,
     };
     for op in &circuit.ops {
+        // Elements on free modes only are a separate experiment on the chip.
+        if !matches!(op.kind, OpKind::Gate { .. })
+            && op.kind.modes(&circuit.qubits).iter().all(|&m| rail_of(m).is_none())
+        {
+            continue;
+        }
         let (qubits, g): (Vec<usize>, DMatrix<Complex64>) = match &op.kind {
             OpKind::Gate { gate, qubits } => (qubits.clone(), gate.matrix()),
             OpKind::Phase { phase_rad, mode } => {
