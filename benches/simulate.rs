@@ -34,7 +34,9 @@ fn scenario(dir: &std::path::Path) -> (std::path::PathBuf, String) {
     }
     std::fs::write(dir.join("U40.csv"), csv).unwrap();
     let names: Vec<String> = (0..MODES).map(|i| format!("m{i}")).collect();
-    let launch: Vec<String> = (0..PHOTONS).map(|i| format!("m{} = 1 photon", 2 * i)).collect();
+    let launch: Vec<String> = (0..PHOTONS)
+        .map(|i| format!("m{} = 1 photon", 2 * i))
+        .collect();
     let text = format!(
         "// A boson-sampling style benchmark network.\nchip sampler {{\n    mode {}\n    launch {}\n    unitary on m0 ... m{} from \"U40.csv\"\n}}\n",
         names.join(", "),
@@ -44,7 +46,9 @@ fn scenario(dir: &std::path::Path) -> (std::path::PathBuf, String) {
     let path = dir.join("sampler.trl");
     std::fs::write(&path, text).unwrap();
     // Photons leave in the first 20 modes, one each.
-    let pattern: Vec<&str> = (0..MODES).map(|i| if i < PHOTONS { "1" } else { "0" }).collect();
+    let pattern: Vec<&str> = (0..MODES)
+        .map(|i| if i < PHOTONS { "1" } else { "0" })
+        .collect();
     (path, pattern.join(","))
 }
 

@@ -229,7 +229,12 @@ fn help_reads_well() {
 }
 
 fn simulate_json(args: &[&str]) -> serde_json::Value {
-    let out = trilane().arg("simulate").args(args).arg("--json").output().unwrap();
+    let out = trilane()
+        .arg("simulate")
+        .args(args)
+        .arg("--json")
+        .output()
+        .unwrap();
     assert!(
         out.status.success(),
         "{}",
@@ -261,7 +266,10 @@ fn every_example_simulates() {
         // A lossless network keeps every photon.
         assert!((total - 1.0).abs() < 1e-12, "{file}: total {total}");
         if let Some(f) = doc["process_fidelity"].as_f64() {
-            assert!(f > 1.0 - 1e-9, "{file}: the example's ideal network does what it says ({f})");
+            assert!(
+                f > 1.0 - 1e-9,
+                "{file}: the example's ideal network does what it says ({f})"
+            );
         }
     }
 }

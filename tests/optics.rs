@@ -41,7 +41,9 @@ fn hong_ou_mandel_through_a_circuit() {
             "chip hom {{\n mode m0, m1\n launch m0 = 1 photon, m1 = 1 photon\n split({r}) on m0, m1\n detect m0, m1\n}}\n"
         ));
         let net = network(&circ);
-        let p = amplitude(&net.unitary, &[1, 1], &[1, 1]).unwrap().norm_sqr();
+        let p = amplitude(&net.unitary, &[1, 1], &[1, 1])
+            .unwrap()
+            .norm_sqr();
         assert!((p - (1.0 - 2.0 * r).powi(2)).abs() < 1e-14, "R = {r}: {p}");
     }
 }
@@ -53,7 +55,10 @@ fn post_selected_cz_is_one_third_cz_with_success_one_ninth() {
     let circ = chip("chip g {\n dualrail a, b\n CZ on a, b\n}\n");
     let net = network(&circ);
     assert_eq!(net.modes.len(), 6, "two vacuum ancilla modes");
-    assert_eq!(net.mode_names(), ["a.0", "a.1", "b.0", "b.1", "cz1.v0", "cz1.v1"]);
+    assert_eq!(
+        net.mode_names(),
+        ["a.0", "a.1", "b.0", "b.1", "cz1.v0", "cz1.v1"]
+    );
     let v = logical_map(&net).unwrap();
     let want = diag(&[1.0, 1.0, 1.0, -1.0]) / c(3.0);
     assert!(max_abs(&(&v.matrix - &want)) < 1e-15);
@@ -142,7 +147,11 @@ fn cascaded_post_selected_cz_is_not_one_81st_identity() {
     let w = cascade_warnings(&circ, &net, Some(&r));
     assert_eq!(w.len(), 1);
     assert_eq!(w[0].code, "cascaded-post-selection");
-    assert!(w[0].message.contains("here they do not"), "{}", w[0].message);
+    assert!(
+        w[0].message.contains("here they do not"),
+        "{}",
+        w[0].message
+    );
 }
 
 #[test]
@@ -168,7 +177,9 @@ fn cnot_is_cz_between_hadamards() {
 
 #[test]
 fn heralded_gates_compose_where_post_selected_ones_do_not() {
-    let circ = chip("chip g {\n dualrail a, b\n H on b\n CZ heralded on a, b\n H on b\n H on a\n CZ heralded on b, a\n H on a\n detect a, b\n}\n");
+    let circ = chip(
+        "chip g {\n dualrail a, b\n H on b\n CZ heralded on a, b\n H on b\n H on a\n CZ heralded on b, a\n H on a\n detect a, b\n}\n",
+    );
     let net = network(&circ);
     let r = logical_result(&circ, &net).unwrap();
     assert!((r.fidelity - 1.0).abs() < 1e-12);
@@ -214,7 +225,11 @@ fn passes_keep_the_logical_map() {
     };
     assert_eq!(count("merge"), 2, "{report:?}");
     assert_eq!(count("identities"), 1, "H H is the identity");
-    assert_eq!(count("output-phases"), 2, "T on a and phase on b.1 stand at the outputs");
+    assert_eq!(
+        count("output-phases"),
+        2,
+        "T on a and phase on b.1 stand at the outputs"
+    );
     assert_eq!(opt.ops.len(), 2);
     let before = logical_result(&circ, &network(&circ)).unwrap();
     let net_opt = network(&opt);
@@ -237,7 +252,11 @@ fn passes_keep_the_logical_map() {
 fn distribution_of_the_bell_pair_example() {
     // The Bell pair of circuits/bell_pair.trl: post-selected outcomes 00 and
     // 11 with 1/18 each, so 1/9 in all (Ralph et al. 2002).
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/circuits/bell_pair.trl")).unwrap();
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/circuits/bell_pair.trl"
+    ))
+    .unwrap();
     let circ = chip(&text);
     let net = network(&circ);
     let d = distribution(&net.unitary, &net.launch_occupation()).unwrap();

@@ -165,8 +165,8 @@ fn merge(c: &Circuit, changes: &mut Vec<Change>) -> Vec<Op> {
     // into each output op.
     let mut last_on_mode: Vec<Option<usize>> = vec![None; c.modes.len()];
     let mut merged_from: Vec<Vec<Span>> = Vec::new();
-    let mut merged_what: Vec<Vec<String>> = Vec::new();
-    for op in &c.ops {
+    let mut merged_what: Vec<Vec<usize>> = Vec::new();
+    for (k, op) in c.ops.iter().enumerate() {
         let modes = op.kind.modes(&c.qubits);
         if let OpKind::Gate { gate, qubits } = &op.kind
             && gate.qubit_count() == 1
@@ -186,7 +186,7 @@ fn merge(c: &Circuit, changes: &mut Vec<Change>) -> Vec<Op> {
                     matrix: product,
                 };
                 merged_from[i].push(op.span);
-                merged_what[i].push(describe(c, op));
+                merged_what[i].push(k);
                 continue;
             }
         }
@@ -194,7 +194,7 @@ fn merge(c: &Circuit, changes: &mut Vec<Change>) -> Vec<Op> {
         for m in modes {
             last_on_mode[m] = Some(at);
         }
-        merged_what.push(vec![describe(c, op)]);
+        merged_what.push(vec![k]);
         merged_from.push(vec![op.span]);
         out.push(op.clone());
     }
@@ -206,7 +206,11 @@ fn merge(c: &Circuit, changes: &mut Vec<Change>) -> Vec<Op> {
                     "merged {} gates on {} into one: {}",
                     spans.len(),
                     c.qubits[q].name,
-                    merged_what[i].join("; ")
+                    merged_what[i]
+                        .iter()
+                        .map(|&k| describe(c, &c.ops[k]))
+                        .collect::<Vec<_>>()
+                        .join("; ")
                 ),
                 spans,
             });

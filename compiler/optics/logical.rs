@@ -347,7 +347,11 @@ pub fn gate_target(circuit: &Circuit) -> Option<DMatrix<Complex64>> {
     for op in &circuit.ops {
         // Elements on free modes only are a separate experiment on the chip.
         if !matches!(op.kind, OpKind::Gate { .. })
-            && op.kind.modes(&circuit.qubits).iter().all(|&m| rail_of(m).is_none())
+            && op
+                .kind
+                .modes(&circuit.qubits)
+                .iter()
+                .all(|&m| rail_of(m).is_none())
         {
             continue;
         }

@@ -59,6 +59,9 @@ pub enum Statistics {
     Distribution(Vec<Outcome>),
     /// The one pattern asked for.
     Pattern(Outcome),
+    /// The distribution is out of reach; the reason, which points to
+    /// `--output`.
+    OutOfReach(String),
 }
 
 #[derive(Clone, Debug, PartialEq)]
@@ -141,7 +144,13 @@ pub fn simulate(
             occupation: out.to_vec(),
             amplitude: amplitude::amplitude(&net.unitary, &launch, out)?,
         }),
-        None => Statistics::Distribution(amplitude::distribution(&net.unitary, &launch)?),
+        None => match amplitude::distribution(&net.unitary, &launch) {
+            Ok(d) => Statistics::Distribution(d),
+            Err(e @ (AmplitudeError::TooManyPatterns { .. } | AmplitudeError::Permanent(_))) => {
+                Statistics::OutOfReach(e.to_string())
+            }
+            Err(e) => return Err(e.into()),
+        },
     };
     let (_, passes) = optimise(circuit);
     let warnings = cascade_warnings(circuit, &net, logical.as_ref().ok());

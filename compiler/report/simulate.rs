@@ -40,6 +40,9 @@ pub struct JsonSimulation {
     pub warnings: Vec<JsonDiagnostic>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub distribution: Option<Vec<JsonOutcome>>,
+    /// Why there is no distribution (too many patterns), when there is none.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub distribution_note: Option<String>,
     #[serde(skip_serializing_if = "Option::is_none")]
     pub distribution_patterns: Option<usize>,
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -143,6 +146,7 @@ pub fn to_json(sim: &Simulation, src: &Source) -> JsonSimulation {
             .map(|d| json_diagnostic(d, src))
             .collect(),
         distribution: None,
+        distribution_note: None,
         distribution_patterns: None,
         distribution_cutoff: None,
         total_probability: None,
@@ -190,6 +194,7 @@ pub fn to_json(sim: &Simulation, src: &Source) -> JsonSimulation {
             doc.distribution_cutoff = Some(PROBABILITY_CUTOFF);
             doc.total_probability = Some(all.iter().map(|o| o.probability()).sum());
         }
+        Statistics::OutOfReach(why) => doc.distribution_note = Some(why.clone()),
         Statistics::Pattern(o) => {
             doc.occupation = Some(o.occupation.clone());
             doc.logical = Some(logical_label(net, &o.occupation));
@@ -198,6 +203,15 @@ pub fn to_json(sim: &Simulation, src: &Source) -> JsonSimulation {
         }
     }
     doc
+}
+
+/// A probability in six decimals, or in scientific notation when small.
+fn figure(x: f64) -> String {
+    if x != 0.0 && x.abs() < 1e-3 {
+        format!("{x:.6e}")
+    } else {
+        format!("{x:.6}")
+    }
 }
 
 fn list(v: &[u32]) -> String {
@@ -290,8 +304,8 @@ pub fn to_text(sim: &Simulation, circuit: &crate::circuit::Circuit, src: &Source
             let _ = writeln!(s, "  target                  {target}");
             let _ = writeln!(
                 s,
-                "  scheme success          {:.6}   Tr(V^dag V) / {d}",
-                l.scheme_success
+                "  scheme success          {}   Tr(V^dag V) / {d}",
+                figure(l.scheme_success)
             );
             match l.fidelity_kind {
                 crate::optics::simulate::FidelityKind::UpToOutputPhases => {
@@ -339,16 +353,16 @@ pub fn to_text(sim: &Simulation, circuit: &crate::circuit::Circuit, src: &Source
             let width = (net.modes.len() * 2).max(10);
             let _ = writeln!(
                 s,
-                "  {:<width$}  {:<8}  {:>11}  amplitude",
+                "  {:<width$}  {:<8}  {:>12}  amplitude",
                 "occupation", "logical", "probability"
             );
             for o in shown.iter().take(TABLE_ROWS) {
                 let _ = writeln!(
                     s,
-                    "  {:<width$}  {:<8}  {:>11.6}  {}",
+                    "  {:<width$}  {:<8}  {:>12}  {}",
                     list(&o.occupation),
                     logical_label(net, &o.occupation).unwrap_or_else(|| "-".into()),
-                    o.probability(),
+                    figure(o.probability()),
                     complex_text(o.amplitude, 6)
                 );
             }
@@ -363,9 +377,13 @@ pub fn to_text(sim: &Simulation, circuit: &crate::circuit::Circuit, src: &Source
                     .sum();
                 let _ = writeln!(
                     s,
-                    "  logical outcomes        {p:.6}   (this launch state's success)"
+                    "  logical outcomes        {}   (this launch state's success)",
+                    figure(p)
                 );
             }
+        }
+        Statistics::OutOfReach(why) => {
+            let _ = writeln!(s, "output distribution: not computed ({why})");
         }
         Statistics::Pattern(o) => {
             let _ = writeln!(s, "output pattern {}", list(&o.occupation));
