@@ -488,6 +488,11 @@ fn simulate(
         "{}",
         diagnostic::render_all(&Diagnostics(result.warnings.clone()), &src, style())
     );
+    // Nothing computed at all: an error, not an empty report.
+    if let (Err(_), sim::Statistics::OutOfReach(why)) = (&result.logical, &result.statistics) {
+        eprintln!("error: chip {}: {why}", circuit.name);
+        return 1;
+    }
     let text = if json {
         let doc = trilane::report::simulate::to_json(&result, &src);
         serde_json::to_string_pretty(&doc).expect("the report serialises") + "\n"
