@@ -6,8 +6,17 @@
 //! 1. `syntax::parse`     source text -> [`syntax::Ast`] (pest grammar, spans)
 //! 2. `circuit::elaborate` AST -> [`circuit::Circuit`] per chip (names,
 //!    units, definitions expanded), then `circuit::validate`
-//! 3. optics, process, cell, compile, layout and report stages follow the
-//!    front end as they land (see README.md for what works today).
+//! 3. `optics::network`  circuit -> [`optics::ModeNetwork`]: every operation
+//!    as a transfer matrix on its modes, gate schemes with their helper
+//!    modes; `optics::logical` and `optics::amplitude` read it (the logical
+//!    map by permanents, fidelities, photon statistics), and
+//!    `optics::simulate` is what `trilane simulate` computes
+//! 4. `compile::optimise`  circuit -> circuit: the passes (merge, identities,
+//!    output phases), each reporting what it removed
+//! 5. `report`            text tables and JSON wire types
+//!
+//! The process, cell, mesh strategies, layout and budget stages follow as
+//! they land (see README.md for what works today).
 //!
 //! The core takes text and values and returns values; only `main.rs` touches
 //! the file system, and diagnostics are data until `diagnostic::render`.
