@@ -25,6 +25,7 @@ pub mod circuit;
 pub mod compile;
 pub mod diagnostic;
 pub mod optics;
+pub mod process;
 pub mod report;
 pub mod source;
 pub mod syntax;

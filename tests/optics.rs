@@ -271,3 +271,16 @@ fn distribution_of_the_bell_pair_example() {
     let total: f64 = d.iter().map(|o| o.probability()).sum();
     assert!((total - 1.0).abs() < 1e-13);
 }
+
+#[test]
+fn output_phases_stay_on_qubits_nobody_counts() {
+    // Only `b` is counted: the phase on `a` leaves the chip with it.
+    let circ = chip(
+        "chip g {\n dualrail a, b\n H on b\n SWAP on a, b\n P(0.7) on a\n T on b\n detect b\n}\n",
+    );
+    let (opt, report) = optimise(&circ);
+    let dropped = &report.passes[2].changes;
+    assert_eq!(dropped.len(), 1, "{dropped:?}");
+    assert!(dropped[0].what.contains("T on b"));
+    assert_eq!(opt.ops.len(), 3);
+}

@@ -11,9 +11,10 @@
 //!    phase is not global there;
 //! 3. **output phases**, only when the chip ends in `detect`: diagonal
 //!    operations (phases, `Z`, `S`, `T`, `RZ`, `P`, diagonal `unitary`) with
-//!    no later operation on any of their modes. Photon counting multiplies
-//!    each detection pattern's amplitude by a phase and so cannot see them
-//!    (docs/physics.md section 7).
+//!    no later operation on any of their modes, all of whose modes are
+//!    counted (rails of detected qubits, detected modes, heralded ancillas).
+//!    Photon counting multiplies each detection pattern's amplitude by a
+//!    phase and so cannot see them (docs/physics.md section 4).
 //!
 //! Every pass reports what it changed, with the source spans.
 
@@ -262,12 +263,21 @@ fn drop_output_phases(c: &Circuit, changes: &mut Vec<Change>) -> Vec<Op> {
     if c.detect.is_none() {
         return c.ops.clone();
     }
+    // Only outputs that are counted hide their phases: a qubit that `detect`
+    // does not name leaves the chip coherent, phases and all.
+    let herald_modes: Vec<usize> = c.heralds.iter().map(|h| h.mode).collect();
+    let counted = |m: usize| -> bool {
+        let d = c.detect.as_ref().expect("checked above");
+        herald_modes.contains(&m)
+            || d.modes.contains(&m)
+            || matches!(c.modes[m].role, ModeRole::Rail { qubit, .. } if d.qubits.contains(&qubit))
+    };
     let mut touched_later = vec![false; c.modes.len()];
     let mut keep = vec![true; c.ops.len()];
     for (k, op) in c.ops.iter().enumerate().rev() {
         let modes = op.kind.modes(&c.qubits);
         let diagonal = local_matrix(c, op).is_some_and(|(_, m)| is_diagonal(&m));
-        if diagonal && modes.iter().all(|&m| !touched_later[m]) {
+        if diagonal && modes.iter().all(|&m| !touched_later[m] && counted(m)) {
             keep[k] = false;
         } else {
             for m in modes {

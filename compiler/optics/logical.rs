@@ -260,20 +260,41 @@ pub fn process_fidelity(target: &DMatrix<Complex64>, v: &DMatrix<Complex64>) -> 
     (trace_inner(target, v).norm_sqr() / norm).min(1.0)
 }
 
-/// `F_detect`: the process fidelity maximised over diagonal output phases.
+/// `F_detect`: the process fidelity maximised over diagonal output phases,
+/// every qubit counted at the end.
 pub fn detect_fidelity(target: &DMatrix<Complex64>, v: &DMatrix<Complex64>) -> f64 {
+    let n = v.nrows().trailing_zeros() as usize;
+    detect_fidelity_of(target, v, &vec![true; n])
+}
+
+/// The process fidelity maximised over the output phases that counting
+/// `detected` qubits cannot see: phases that depend only on the detected
+/// qubits' output bits. With every qubit detected this is physics.md's
+/// `F_detect = (sum_y |sum_x conj(V_t[y, x]) V[y, x]|)^2 / (d Tr(V^dag V))`;
+/// with none, `F_pro`. Rows y are grouped by their detected bits, and each
+/// group's overlap enters with its modulus.
+pub fn detect_fidelity_of(
+    target: &DMatrix<Complex64>,
+    v: &DMatrix<Complex64>,
+    detected: &[bool],
+) -> f64 {
     let norm = trace_inner(v, v).re * v.ncols() as f64;
     if norm <= 0.0 {
         return 0.0;
     }
-    let s: f64 = (0..v.nrows())
-        .map(|y| {
-            (0..v.ncols())
-                .map(|x| target[(y, x)].conj() * v[(y, x)])
-                .sum::<Complex64>()
-                .norm()
-        })
+    let n = detected.len();
+    let mask: usize = (0..n)
+        .filter(|&q| detected[q])
+        .map(|q| 1usize << (n - 1 - q))
         .sum();
+    let mut groups = std::collections::BTreeMap::<usize, Complex64>::new();
+    for y in 0..v.nrows() {
+        let overlap: Complex64 = (0..v.ncols())
+            .map(|x| target[(y, x)].conj() * v[(y, x)])
+            .sum();
+        *groups.entry(y & mask).or_default() += overlap;
+    }
+    let s: f64 = groups.values().map(|z| z.norm()).sum();
     (s * s / norm).min(1.0)
 }
 
@@ -477,6 +498,24 @@ mod tests {
             apply_gate(&mut b, 2, &[q], &QubitGate::H.matrix());
         }
         assert!((a - b).norm() < 1e-14);
+    }
+
+    #[test]
+    fn partial_detection_hides_only_the_detected_qubits_phases() {
+        // P(0.7) on the second qubit only: invisible when it is counted,
+        // visible when only the first qubit is counted.
+        let p = Complex64::from_polar(1.0, 0.7);
+        let o = Complex64::new(1.0, 0.0);
+        let v = DMatrix::from_diagonal(&nalgebra::DVector::from_vec(vec![o, p, o, p]));
+        let id: DMatrix<Complex64> = DMatrix::identity(4, 4);
+        assert!((detect_fidelity_of(&id, &v, &[true, true]) - 1.0).abs() < 1e-15);
+        assert!((detect_fidelity_of(&id, &v, &[false, true]) - 1.0).abs() < 1e-15);
+        let f = detect_fidelity_of(&id, &v, &[true, false]);
+        assert!((f - process_fidelity(&id, &v)).abs() < 1e-15 && f < 0.9);
+        assert!(
+            (detect_fidelity_of(&id, &v, &[false, false]) - process_fidelity(&id, &v)).abs()
+                < 1e-15
+        );
     }
 
     #[test]

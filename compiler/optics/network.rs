@@ -80,8 +80,14 @@ pub struct ModeNetwork {
     pub elements: Vec<Element>,
     /// The N x N transfer matrix, N = `modes.len()`.
     pub unitary: DMatrix<Complex64>,
-    /// Whether the chip ends in photon counting (output phases unobservable).
+    /// Whether the chip ends in photon counting.
     pub detect: bool,
+    /// Per qubit: counted at the end (`detect` names it), so phases on its
+    /// outputs are unobservable.
+    pub detected_qubits: Vec<bool>,
+    /// Per mode: its output is counted, by `detect` (a detected qubit's
+    /// rails, a detected mode) or by a herald, so a phase there is unseen.
+    pub detected_modes: Vec<bool>,
     /// The scheme of each post-selected gate: op index and its qubits.
     pub post_selected: Vec<(usize, [usize; 2])>,
 }
@@ -276,6 +282,7 @@ pub fn network(circuit: &Circuit) -> ModeNetwork {
         });
     }
     let n = modes.len();
+    let (detected_qubits, detected_modes) = detected(circuit, &modes);
     let mut unitary = DMatrix::identity(n, n);
     for e in &elements {
         apply_rows(&mut unitary, e);
@@ -287,8 +294,28 @@ pub fn network(circuit: &Circuit) -> ModeNetwork {
         elements,
         unitary,
         detect: circuit.detect.is_some(),
+        detected_qubits,
+        detected_modes,
         post_selected,
     }
+}
+
+/// Which qubits and which of `modes` are counted at the outputs.
+pub fn detected(circuit: &Circuit, modes: &[NetworkMode]) -> (Vec<bool>, Vec<bool>) {
+    let mut qubits = vec![false; circuit.qubits.len()];
+    let mut counted: Vec<bool> = modes.iter().map(|m| m.herald.is_some()).collect();
+    if let Some(d) = &circuit.detect {
+        for &q in &d.qubits {
+            qubits[q] = true;
+            for r in circuit.qubits[q].rails {
+                counted[r] = true;
+            }
+        }
+        for &m in &d.modes {
+            counted[m] = true;
+        }
+    }
+    (qubits, counted)
 }
 
 /// `u <- E u` for an element acting on a few rows: O(k N) per element.

@@ -15,7 +15,8 @@ use crate::diagnostic::Diagnostic;
 pub enum FidelityKind {
     /// `F_pro`, phases included.
     Process,
-    /// `F_detect`: the chip ends in `detect`, output phases are free.
+    /// `F_detect`: the chip ends in `detect`; the output phases of the
+    /// counted qubits are free.
     UpToOutputPhases,
 }
 
@@ -101,7 +102,7 @@ pub fn logical_result(circuit: &Circuit, net: &ModeNetwork) -> Result<LogicalRes
     let full = logical::process_fidelity(target.matrix(), &map.matrix);
     let (fidelity, fidelity_kind) = if net.detect {
         (
-            logical::detect_fidelity(target.matrix(), &map.matrix),
+            logical::detect_fidelity_of(target.matrix(), &map.matrix, &net.detected_qubits),
             FidelityKind::UpToOutputPhases,
         )
     } else {
@@ -212,6 +213,15 @@ pub fn parse_launch(net: &ModeNetwork, text: &str) -> Result<Vec<u32>, String> {
             occ[q.rails[0]] = u32::from(bit == 0);
             occ[q.rails[1]] = u32::from(bit == 1);
         } else if let Some(m) = net.modes.iter().position(|m| m.name == name) {
+            if net.modes[m].role == ModeRole::Ancilla {
+                let whose = match net.modes[m].origin {
+                    super::network::ModeOrigin::Declared => "its `ancilla` declaration",
+                    super::network::ModeOrigin::Gate { .. } => "the gate scheme that adds it",
+                };
+                return Err(format!(
+                    "`{name}` is an ancilla: its photons are set by {whose}, and the logical map and heralds rely on them"
+                ));
+            }
             let n: u32 = value.parse().map_err(|_| {
                 format!("mode `{name}` takes a photon number (0, 1, 2, ...), not `{value}`")
             })?;
