@@ -93,6 +93,28 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Show a process: materials, the guide's mode, the coupling law and its
+    /// fits, design rules, phase shifters, loss and tolerances
+    ///
+    /// PROCESS is a built-in preset (si220_wire, the default; sin400_strip;
+    /// silica_plc) or a process file (.toml) that overrides a preset's
+    /// fields. The coupling law is computed by the process's waveguide model,
+    /// or fitted from a table.
+    Process {
+        /// A preset name or a process file
+        #[arg(value_name = "PROCESS", default_value = "si220_wire")]
+        target: String,
+        /// Fit this coupling table instead (CSV: `gap_nm,k_per_um` or
+        /// `gap_nm,k_per_um@1550nm,k_per_um@1530nm,...`)
+        #[arg(long, value_name = "FILE.csv")]
+        table: Option<PathBuf>,
+        /// Draw k(g) on a log axis with the fits into an SVG file
+        #[arg(long, value_name = "FILE.svg")]
+        plot: Option<PathBuf>,
+        /// Print one JSON document on stdout instead of the summary
+        #[arg(long)]
+        json: bool,
+    },
 }
 
 /// The front end recurses over expressions (bounded by the parser's
@@ -124,6 +146,12 @@ fn main() -> ExitCode {
                 output.as_deref(),
                 json,
             ),
+            Command::Process {
+                target,
+                table,
+                plot,
+                json,
+            } => process(&target, table.as_deref(), plot.as_deref(), json),
         });
     let code = match work.map(|h| h.join()) {
         Ok(Ok(code)) => code,
@@ -498,6 +526,111 @@ fn simulate(
         serde_json::to_string_pretty(&doc).expect("the report serialises") + "\n"
     } else {
         trilane::report::simulate::to_text(&result, &circuit, &src)
+    };
+    let _ = std::io::stdout().lock().write_all(text.as_bytes());
+    0
+}
+
+fn render_located(errors: &[trilane::process::file::LocatedErrors]) {
+    for e in errors {
+        eprint!(
+            "{}",
+            diagnostic::render_all(&e.diagnostics, &e.source, style())
+        );
+    }
+}
+
+/// Reads a preset or a process file; `Err` is the exit code.
+fn load_process(target: &str) -> Result<trilane::process::spec::Process, u8> {
+    use trilane::process::presets;
+    if let Some(p) = presets::preset(target) {
+        return Ok(p);
+    }
+    let path = Path::new(target);
+    if !path.exists() {
+        let hint = trilane::circuit::suggest::nearest(target, presets::NAMES)
+            .map(|n| format!(" (did you mean `{n}`?)"))
+            .unwrap_or_default();
+        eprintln!(
+            "error: `{target}` is neither a built-in process{hint} nor a file; presets: {}",
+            presets::NAMES.join(", ")
+        );
+        return Err(2);
+    }
+    let (src, bad) = read_source(path).map_err(|msg| {
+        eprintln!("error: {msg}");
+        2u8
+    })?;
+    if let Some(d) = bad {
+        eprint!("{}", diagnostic::render(&d, &src, style()));
+        return Err(1);
+    }
+    let loader = FolderLoader {
+        dir: path.parent().map(Path::to_path_buf).unwrap_or_default(),
+    };
+    trilane::process::file::read(&src, &loader).map_err(|errors| {
+        render_located(&errors);
+        1u8
+    })
+}
+
+fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) -> u8 {
+    use trilane::process::spec::CouplingSource;
+    let mut p = match load_process(target) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    if let Some(path) = table {
+        let (src, bad) = match read_source(path) {
+            Ok(x) => x,
+            Err(msg) => {
+                eprintln!("error: {msg}");
+                return 2;
+            }
+        };
+        if let Some(d) = bad {
+            eprint!("{}", diagnostic::render(&d, &src, style()));
+            return 1;
+        }
+        match trilane::process::table::parse(&src, p.wavelength_um) {
+            Ok(tables) => {
+                p.coupling = CouplingSource::Table {
+                    g_ref_nm: p.coupling.g_ref_nm(),
+                    tables,
+                    from: src.name.clone(),
+                }
+            }
+            Err(d) => {
+                eprint!("{}", diagnostic::render_all(&d, &src, style()));
+                return 1;
+            }
+        }
+    }
+    let c = match trilane::process::law::characterise(&p, &trilane::process::eim::EffectiveIndex) {
+        Ok(c) => c,
+        Err(e) => {
+            eprintln!("error: process {}: {e}", p.name);
+            return 1;
+        }
+    };
+    if let Some(path) = plot {
+        let svg = match trilane::report::process::coupling_plot_svg(&p, &c) {
+            Ok(svg) => svg,
+            Err(e) => {
+                eprintln!("error: cannot draw the coupling law: {e}");
+                return 70;
+            }
+        };
+        if let Err(e) = write_atomically(path, svg.as_bytes()) {
+            eprintln!("error: cannot write {}: {}", path.display(), io_reason(&e));
+            return 2;
+        }
+    }
+    let text = if json {
+        let doc = trilane::report::process::to_json(&p, &c);
+        serde_json::to_string_pretty(&doc).expect("the report serialises") + "\n"
+    } else {
+        trilane::report::process::to_text(&p, &c)
     };
     let _ = std::io::stdout().lock().write_all(text.as_bytes());
     0

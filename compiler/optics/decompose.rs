@@ -101,10 +101,14 @@ impl Decomposition {
 /// Rows (m, m+1) of `u` replaced by `t` times them, from column `from` on
 /// (the columns before it are zero in both rows when nulling).
 fn apply_left(u: &mut DMatrix<Complex64>, m: usize, t: [[Complex64; 2]; 2], from: usize) {
-    for j in from..u.ncols() {
-        let (a, b) = (u[(m, j)], u[(m + 1, j)]);
-        u[(m, j)] = t[0][0] * a + t[0][1] * b;
-        u[(m + 1, j)] = t[1][0] * a + t[1][1] * b;
+    // Column-major storage: walk the columns as slices, so the two entries
+    // of each column sit side by side and no index is bounds-checked twice.
+    let n = u.nrows();
+    for col in u.as_mut_slice()[from * n..].chunks_exact_mut(n) {
+        let pair = &mut col[m..m + 2];
+        let (a, b) = (pair[0], pair[1]);
+        pair[0] = t[0][0] * a + t[0][1] * b;
+        pair[1] = t[1][0] * a + t[1][1] * b;
     }
 }
 
@@ -116,10 +120,12 @@ fn apply_right_inverse(u: &mut DMatrix<Complex64>, m: usize, t: [[Complex64; 2];
         [t[0][0].conj(), t[1][0].conj()],
         [t[0][1].conj(), t[1][1].conj()],
     ];
-    for i in 0..=last {
-        let (a, b) = (u[(i, m)], u[(i, m + 1)]);
-        u[(i, m)] = a * inv[0][0] + b * inv[1][0];
-        u[(i, m + 1)] = a * inv[0][1] + b * inv[1][1];
+    let n = u.nrows();
+    let (c0, c1) = u.as_mut_slice()[m * n..(m + 2) * n].split_at_mut(n);
+    for (x, y) in c0[..=last].iter_mut().zip(&mut c1[..=last]) {
+        let (a, b) = (*x, *y);
+        *x = a * inv[0][0] + b * inv[1][0];
+        *y = a * inv[0][1] + b * inv[1][1];
     }
 }
 

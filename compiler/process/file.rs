@@ -1,0 +1,556 @@
+//! Process files (TOML): a preset named by `base` with any of its fields
+//! overridden. Unknown keys and bad values are located diagnostics on the
+//! file. The format is documented in docs/process.md.
+//!
+//! ```toml
+//! name = "run7"
+//! base = "si220_wire"
+//! [guide]
+//! width_nm = 480
+//! [tolerances]
+//! edge_bias_nm = 3
+//! [coupling]
+//! table = "run7_coupling.csv"   # measured; relative to this file
+//! ```
+
+use super::presets;
+use super::spec::{CouplingSource, MATERIAL_NAMES, Process, material_by_name};
+use super::table;
+use crate::circuit::FileLoader;
+use crate::circuit::suggest::nearest;
+use crate::diagnostic::{Diagnostic, Diagnostics};
+use crate::source::{Source, Span};
+use serde::Deserialize;
+use toml::Spanned;
+
+/// Diagnostics and the file they are about.
+#[derive(Clone, Debug)]
+pub struct LocatedErrors {
+    pub source: Source,
+    pub diagnostics: Diagnostics,
+}
+
+type Num = Option<Spanned<f64>>;
+type Text = Option<Spanned<String>>;
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFile {
+    base: Text,
+    name: Text,
+    summary: Option<String>,
+    guide: Option<RawGuide>,
+    rules: Option<RawRules>,
+    thermal: Option<RawThermal>,
+    passive: Option<RawPassive>,
+    loss: Option<RawLoss>,
+    tolerances: Option<RawTolerances>,
+    coupling: Option<RawCoupling>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawGuide {
+    width_nm: Num,
+    thickness_nm: Num,
+    wavelength_nm: Num,
+    core: Text,
+    lower_cladding: Text,
+    upper_cladding: Text,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawRules {
+    min_gap_nm: Num,
+    min_width_nm: Num,
+    min_bend_radius_um: Num,
+    rail_pitch_um: Num,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawThermal {
+    length_um: Num,
+    p_pi_mw: Num,
+    loss_db: Num,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPassive {
+    width_step_nm: Num,
+    loss_db: Num,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawLoss {
+    propagation_db_per_cm: Num,
+    bend_db: Num,
+    crossing_db: Num,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawTolerances {
+    edge_bias_nm: Num,
+    thickness_bias_nm: Num,
+    edge_local_nm: Num,
+    roughness_nm: Num,
+    correlation_um: Num,
+    phase_rad: Num,
+    wavelength_nm: Num,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawCoupling {
+    model: Text,
+    table: Text,
+    gaps_nm: Option<Spanned<Vec<f64>>>,
+    g_ref_nm: Num,
+}
+
+fn span(r: std::ops::Range<usize>) -> Span {
+    Span::new(r.start, r.end.max(r.start + 1))
+}
+
+/// What a value must be.
+#[derive(Clone, Copy)]
+enum Need {
+    Positive,
+    NonNegative,
+    AtLeast(f64),
+}
+
+struct Reader {
+    diags: Diagnostics,
+}
+
+impl Reader {
+    fn num(&mut self, slot: &mut f64, v: &Num, key: &str, need: Need, scale: f64) {
+        let Some(v) = v else { return };
+        let x = *v.get_ref();
+        let ok = x.is_finite()
+            && match need {
+                Need::Positive => x > 0.0,
+                Need::NonNegative => x >= 0.0,
+                Need::AtLeast(m) => x >= m,
+            };
+        if !ok {
+            let want = match need {
+                Need::Positive => "a positive number".to_owned(),
+                Need::NonNegative => "zero or more".to_owned(),
+                Need::AtLeast(m) => format!("at least {m}"),
+            };
+            self.diags.push(Diagnostic::error(
+                "process-value",
+                format!("`{key}` must be {want}, got {x}"),
+                span(v.span()),
+                "out of range",
+            ));
+            return;
+        }
+        *slot = x * scale;
+    }
+
+    fn material(&mut self, slot: &mut super::material::Material, v: &Text, key: &str) {
+        let Some(v) = v else { return };
+        match material_by_name(v.get_ref()) {
+            Some(m) => *slot = m,
+            None => {
+                let mut d = Diagnostic::error(
+                    "process-value",
+                    format!("`{key}` names an unknown material `{}`", v.get_ref()),
+                    span(v.span()),
+                    "unknown material",
+                );
+                d = d.with_hint(match nearest(v.get_ref(), MATERIAL_NAMES) {
+                    Some(n) => format!(
+                        "did you mean `{n}`? materials: {}",
+                        MATERIAL_NAMES.join(", ")
+                    ),
+                    None => format!("materials: {}", MATERIAL_NAMES.join(", ")),
+                });
+                self.diags.push(d);
+            }
+        }
+    }
+}
+
+/// A toml error as a located diagnostic, with a "did you mean" for
+/// unknown keys.
+fn toml_error(e: &toml::de::Error, len: usize) -> Diagnostic {
+    let sp = e.span().map_or(Span::new(0, len.min(1)), span);
+    let msg = e.message().to_owned();
+    let mut d = Diagnostic::error("process-file", msg.clone(), sp, "here");
+    if let Some(rest) = msg.strip_prefix("unknown field `")
+        && let Some((field, expected)) = rest.split_once('`')
+    {
+        let names: Vec<&str> = expected.split('`').skip(1).step_by(2).collect();
+        if let Some(n) = nearest(field, names.iter().copied()) {
+            d = d.with_hint(format!("did you mean `{n}`?"));
+        }
+        d.labels[0].text = "unknown key".into();
+    }
+    d
+}
+
+/// Reads a process file; matrix and table files it names come through
+/// `files`, relative to it.
+pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<LocatedErrors>> {
+    let fail = |d: Diagnostics| {
+        vec![LocatedErrors {
+            source: src.clone(),
+            diagnostics: d,
+        }]
+    };
+    let raw: RawFile = match toml::from_str(&src.text) {
+        Ok(r) => r,
+        Err(e) => return Err(fail(Diagnostics::from(toml_error(&e, src.text.len())))),
+    };
+    let mut r = Reader {
+        diags: Diagnostics::new(),
+    };
+    let base_name = raw
+        .base
+        .as_ref()
+        .map_or(presets::DEFAULT, |b| b.get_ref().as_str());
+    let Some(mut p) = presets::preset(base_name) else {
+        let b = raw.base.as_ref().expect("the default exists");
+        let mut d = Diagnostic::error(
+            "process-value",
+            format!("`base` names no built-in process: `{base_name}`"),
+            span(b.span()),
+            "unknown preset",
+        );
+        d = d.with_hint(match nearest(base_name, presets::NAMES) {
+            Some(n) => format!("did you mean `{n}`? presets: {}", presets::NAMES.join(", ")),
+            None => format!("presets: {}", presets::NAMES.join(", ")),
+        });
+        return Err(fail(Diagnostics::from(d)));
+    };
+    p.origin = src.name.clone();
+    if let Some(n) = &raw.name {
+        p.name = n.get_ref().clone();
+    } else {
+        p.name = format!("{} (from {})", p.name, src.name);
+    }
+    if let Some(s) = raw.summary {
+        p.summary = s;
+    }
+    if let Some(g) = &raw.guide {
+        r.num(
+            &mut p.width_nm,
+            &g.width_nm,
+            "width_nm",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.film.thickness_um,
+            &g.thickness_nm,
+            "thickness_nm",
+            Need::Positive,
+            1e-3,
+        );
+        r.num(
+            &mut p.wavelength_um,
+            &g.wavelength_nm,
+            "wavelength_nm",
+            Need::Positive,
+            1e-3,
+        );
+        r.material(&mut p.film.core, &g.core, "core");
+        r.material(&mut p.film.lower, &g.lower_cladding, "lower_cladding");
+        r.material(&mut p.film.upper, &g.upper_cladding, "upper_cladding");
+    }
+    if let Some(x) = &raw.rules {
+        r.num(
+            &mut p.rules.min_gap_nm,
+            &x.min_gap_nm,
+            "min_gap_nm",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.rules.min_width_nm,
+            &x.min_width_nm,
+            "min_width_nm",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.rules.min_bend_radius_um,
+            &x.min_bend_radius_um,
+            "min_bend_radius_um",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.rules.rail_pitch_um,
+            &x.rail_pitch_um,
+            "rail_pitch_um",
+            Need::Positive,
+            1.0,
+        );
+    }
+    if let Some(x) = &raw.thermal {
+        r.num(
+            &mut p.thermal.length_um,
+            &x.length_um,
+            "length_um",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.thermal.p_pi_mw,
+            &x.p_pi_mw,
+            "p_pi_mw",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.thermal.loss_db,
+            &x.loss_db,
+            "loss_db",
+            Need::NonNegative,
+            1.0,
+        );
+    }
+    if let Some(x) = &raw.passive {
+        r.num(
+            &mut p.passive.width_step_nm,
+            &x.width_step_nm,
+            "width_step_nm",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut p.passive.loss_db,
+            &x.loss_db,
+            "loss_db",
+            Need::NonNegative,
+            1.0,
+        );
+    }
+    if let Some(x) = &raw.loss {
+        r.num(
+            &mut p.loss.propagation_db_per_cm,
+            &x.propagation_db_per_cm,
+            "propagation_db_per_cm",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut p.loss.bend_db,
+            &x.bend_db,
+            "bend_db",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut p.loss.crossing_db,
+            &x.crossing_db,
+            "crossing_db",
+            Need::NonNegative,
+            1.0,
+        );
+    }
+    if let Some(x) = &raw.tolerances {
+        let t = &mut p.tolerances;
+        r.num(
+            &mut t.edge_bias_nm,
+            &x.edge_bias_nm,
+            "edge_bias_nm",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut t.thickness_bias_nm,
+            &x.thickness_bias_nm,
+            "thickness_bias_nm",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut t.edge_local_nm,
+            &x.edge_local_nm,
+            "edge_local_nm",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut t.roughness_nm,
+            &x.roughness_nm,
+            "roughness_nm",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut t.correlation_um,
+            &x.correlation_um,
+            "correlation_um",
+            Need::AtLeast(1.0),
+            1.0,
+        );
+        r.num(
+            &mut t.phase_rad,
+            &x.phase_rad,
+            "phase_rad",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut t.wavelength_nm,
+            &x.wavelength_nm,
+            "wavelength_nm",
+            Need::NonNegative,
+            1.0,
+        );
+    }
+    let mut extra = Vec::new();
+    if let Some(c) = &raw.coupling {
+        let mut g_ref = p.coupling.g_ref_nm();
+        r.num(&mut g_ref, &c.g_ref_nm, "g_ref_nm", Need::Positive, 1.0);
+        if let (Some(m), Some(t)) = (&c.model, &c.table) {
+            r.diags.push(
+                Diagnostic::error(
+                    "process-value",
+                    "give either `model` or `table`, not both",
+                    span(t.span()),
+                    "second source",
+                )
+                .with_label(span(m.span()), "first source"),
+            );
+        }
+        if let Some(m) = &c.model
+            && m.get_ref() != "effective_index"
+        {
+            r.diags.push(
+                Diagnostic::error(
+                    "process-value",
+                    format!("unknown coupling model `{}`", m.get_ref()),
+                    span(m.span()),
+                    "unknown model",
+                )
+                .with_hint("models: effective_index (or give a measured `table`)"),
+            );
+        }
+        if let Some(t) = &c.table {
+            match files.load(t.get_ref()) {
+                Ok(text) => {
+                    let csv = Source::new(t.get_ref().clone(), text);
+                    match table::parse(&csv, p.wavelength_um) {
+                        Ok(tables) => {
+                            p.coupling = CouplingSource::Table {
+                                tables,
+                                g_ref_nm: g_ref,
+                                from: t.get_ref().clone(),
+                            }
+                        }
+                        Err(d) => extra.push(LocatedErrors {
+                            source: csv,
+                            diagnostics: d,
+                        }),
+                    }
+                }
+                Err(why) => r.diags.push(Diagnostic::error(
+                    "file",
+                    format!("cannot read the coupling table: {why}"),
+                    span(t.span()),
+                    "cannot read",
+                )),
+            }
+        } else {
+            let gaps = match &c.gaps_nm {
+                Some(g) => {
+                    let v = g.get_ref().clone();
+                    let ok = v.len() >= 3
+                        && v.windows(2).all(|w| w[1] > w[0])
+                        && v.iter().all(|x| *x > 0.0 && x.is_finite());
+                    if !ok {
+                        r.diags.push(Diagnostic::error(
+                            "process-value",
+                            "`gaps_nm` needs at least 3 positive gaps in increasing order",
+                            span(g.span()),
+                            "bad gap list",
+                        ));
+                    }
+                    v
+                }
+                None => match &p.coupling {
+                    CouplingSource::Model { gaps_nm, .. } => gaps_nm.clone(),
+                    CouplingSource::Table { .. } => unreachable!("presets compute their law"),
+                },
+            };
+            p.coupling = CouplingSource::Model {
+                model: "effective_index".into(),
+                gaps_nm: gaps,
+                g_ref_nm: g_ref,
+            };
+        }
+    }
+    let mut errors = Vec::new();
+    if r.diags.has_errors() {
+        errors.push(LocatedErrors {
+            source: src.clone(),
+            diagnostics: r.diags.sorted(),
+        });
+    }
+    errors.extend(extra);
+    if errors.is_empty() {
+        Ok(p)
+    } else {
+        Err(errors)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::circuit::NoFiles;
+
+    #[test]
+    fn a_file_overrides_its_base() {
+        let src = Source::new(
+            "run.toml",
+            "name = \"run7\"\nbase = \"si220_wire\"\n[guide]\nwidth_nm = 480\n[tolerances]\nedge_bias_nm = 3\n",
+        );
+        let p = read(&src, &NoFiles).unwrap();
+        assert_eq!(p.name, "run7");
+        assert_eq!(p.width_nm, 480.0);
+        assert_eq!(p.tolerances.edge_bias_nm, 3.0);
+        assert_eq!(
+            p.rules.min_gap_nm, 100.0,
+            "untouched fields keep the preset's values"
+        );
+    }
+
+    #[test]
+    fn unknown_keys_and_bad_values_are_located() {
+        let src = Source::new("run.toml", "[guide]\nwidht_nm = 480\n");
+        let e = read(&src, &NoFiles).unwrap_err();
+        let d = &e[0].diagnostics.0[0];
+        assert_eq!(src.line_col(d.span().start), (2, 1));
+        assert!(
+            d.hint.as_deref().unwrap_or("").contains("width_nm"),
+            "{d:?}"
+        );
+        let src = Source::new(
+            "run.toml",
+            "[tolerances]\ncorrelation_um = 0.5\n[guide]\ncore = \"silicn\"\n",
+        );
+        let e = read(&src, &NoFiles).unwrap_err();
+        assert_eq!(e[0].diagnostics.0.len(), 2);
+        assert_eq!(src.line_col(e[0].diagnostics.0[0].span().start), (2, 18));
+        assert!(
+            e[0].diagnostics.0[1]
+                .hint
+                .as_deref()
+                .unwrap()
+                .contains("`silicon`")
+        );
+    }
+}

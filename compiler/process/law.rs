@@ -1,0 +1,172 @@
+//! A process characterised: material indices, the strip mode's figures and
+//! the coupling law with its fits, by one waveguide model or from a table.
+
+use super::coupling::{CouplingError, CouplingTable, ExponentialFit, SmoothLaw, exponential_fit};
+use super::eim::{self, EffectiveIndex, ModeFigures, SolverError, Strips, WaveguideModel};
+use super::material::Material;
+use super::spec::{CouplingSource, Process};
+use rayon::prelude::*;
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct MaterialReport {
+    /// `core`, `lower cladding`, `upper cladding`.
+    pub role: &'static str,
+    pub material: Material,
+    pub index: f64,
+    pub group_index: f64,
+}
+
+/// The law at one wavelength.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LawAtWavelength {
+    pub table: CouplingTable,
+    pub fit: ExponentialFit,
+    pub smooth: SmoothLaw,
+}
+
+/// Two- and three-guide splittings at the reference gap (coupled-mode check).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ThreeGuideCheck {
+    pub gap_nm: f64,
+    pub k_pair_per_um: f64,
+    /// `pi (n0 - n2) / l` of three equal guides: sqrt(2) k_pair in coupled-mode theory.
+    pub half_outer_splitting_per_um: f64,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct Characterisation {
+    /// Which model produced the law: `effective_index`, or `table`.
+    pub model: String,
+    pub wavelength_um: f64,
+    pub materials: Vec<MaterialReport>,
+    /// The film's TE0 slab index (the effective index method's first step).
+    pub film_index: Option<f64>,
+    /// Figures of one strip of the process width (a model's, not a table's).
+    pub mode: Option<ModeFigures>,
+    pub three_guides: Option<ThreeGuideCheck>,
+    /// One law per wavelength, the design wavelength first.
+    pub laws: Vec<LawAtWavelength>,
+}
+
+impl Characterisation {
+    /// The law at the design wavelength.
+    pub fn law(&self) -> &LawAtWavelength {
+        &self.laws[0]
+    }
+}
+
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ProcessError {
+    #[error(transparent)]
+    Solver(#[from] SolverError),
+    #[error("coupling law: {0}")]
+    Coupling(#[from] CouplingError),
+}
+
+/// Characterises a process with `model` (used for the mode figures and,
+/// when the process says so, the coupling table).
+pub fn characterise(
+    process: &Process,
+    model: &dyn WaveguideModel,
+) -> Result<Characterisation, ProcessError> {
+    let l = process.wavelength_um;
+    let film = &process.film;
+    let materials = [
+        ("core", &film.core),
+        ("lower cladding", &film.lower),
+        ("upper cladding", &film.upper),
+    ]
+    .into_iter()
+    .map(|(role, m)| {
+        Ok(MaterialReport {
+            role,
+            material: m.clone(),
+            index: m.index(l).map_err(SolverError::from)?,
+            group_index: m.group_index(l).map_err(SolverError::from)?,
+        })
+    })
+    .collect::<Result<Vec<_>, ProcessError>>()?;
+    let width_um = process.width_nm * 1e-3;
+    let mode = eim::mode_figures(model, film, width_um, l)?;
+    let film_index = Some(EffectiveIndex::film_index(film, l)?);
+    let g_ref = process.coupling.g_ref_nm();
+    let (model_name, tables) = match &process.coupling {
+        CouplingSource::Model { gaps_nm, .. } => {
+            let k: Vec<f64> = gaps_nm
+                .par_iter()
+                .map(|g| eim::coupling_per_um(model, film, width_um, g * 1e-3, l))
+                .collect::<Result<_, _>>()?;
+            (
+                model.name().to_owned(),
+                vec![CouplingTable {
+                    wavelength_um: l,
+                    gaps_nm: gaps_nm.clone(),
+                    k_per_um: k,
+                }],
+            )
+        }
+        CouplingSource::Table { tables, .. } => ("table".to_owned(), tables.clone()),
+    };
+    let laws = tables
+        .into_iter()
+        .map(|t| {
+            Ok(LawAtWavelength {
+                fit: exponential_fit(&t.gaps_nm, &t.k_per_um, g_ref)?,
+                smooth: SmoothLaw::new(&t.gaps_nm, &t.k_per_um)?,
+                table: t,
+            })
+        })
+        .collect::<Result<Vec<_>, ProcessError>>()?;
+    let three_guides = {
+        let g = g_ref * 1e-3;
+        let k_pair = eim::coupling_per_um(model, film, width_um, g, l)?;
+        let m3 = model.supermodes(film, &Strips::triple(width_um, g), l)?;
+        Some(ThreeGuideCheck {
+            gap_nm: g_ref,
+            k_pair_per_um: k_pair,
+            half_outer_splitting_per_um: std::f64::consts::PI * (m3[0] - m3[2]) / l,
+        })
+    };
+    Ok(Characterisation {
+        model: model_name,
+        wavelength_um: l,
+        materials,
+        film_index,
+        mode: Some(mode),
+        three_guides,
+        laws,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::process::presets::preset;
+
+    #[test]
+    fn every_preset_characterises() {
+        for name in crate::process::presets::NAMES {
+            let p = preset(name).unwrap();
+            let c = characterise(&p, &EffectiveIndex).unwrap_or_else(|e| panic!("{name}: {e}"));
+            let law = c.law();
+            assert!(law.fit.fit_rms < 0.1, "{name}: rms {}", law.fit.fit_rms);
+            assert!(law.fit.g_c_nm > 0.0);
+            let t = c.three_guides.unwrap();
+            let ratio = t.half_outer_splitting_per_um / (2f64.sqrt() * t.k_pair_per_um);
+            assert!((ratio - 1.0).abs() < 0.02, "{name}: {ratio}");
+        }
+    }
+
+    #[test]
+    fn silicon_wire_decay_length() {
+        // checks.md: the effective index method's decay is about 119 nm; the
+        // issue pins 110-125 nm for this method.
+        let c = characterise(&preset("si220_wire").unwrap(), &EffectiveIndex).unwrap();
+        let g_c = c.law().fit.g_c_nm;
+        assert!((110.0..=125.0).contains(&g_c), "{g_c}");
+        for g in [150.0, 200.0, 300.0] {
+            let d = c.law().smooth.decay_length_nm(g);
+            assert!((100.0..=130.0).contains(&d), "local decay at {g}: {d}");
+        }
+    }
+}

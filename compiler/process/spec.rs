@@ -1,0 +1,141 @@
+//! What a process is: the guide, its materials, design rules, phase
+//! shifters, losses, default tolerances and where its coupling law comes
+//! from. Every number carries its unit in its name; every preset value has
+//! its source beside it in `presets.rs`.
+
+use super::coupling::CouplingTable;
+use super::eim::Film;
+use super::material::Material;
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct Process {
+    /// Preset name, or the name a process file gives.
+    pub name: String,
+    /// One line on what it is.
+    pub summary: String,
+    /// Where the process came from: `preset` or the file path.
+    pub origin: String,
+    pub film: Film,
+    /// Width of every guide (rails and auxiliary guides), nm.
+    pub width_nm: f64,
+    /// Design wavelength, um.
+    pub wavelength_um: f64,
+    pub rules: DesignRules,
+    pub thermal: ThermalShifter,
+    pub passive: PassiveShifter,
+    pub loss: Loss,
+    pub tolerances: ProcessTolerances,
+    pub coupling: CouplingSource,
+    /// Source notes: (what, where it comes from).
+    pub sources: Vec<(String, String)>,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct DesignRules {
+    /// Smallest edge-to-edge gap between guides, nm.
+    pub min_gap_nm: f64,
+    /// Narrowest feature, nm.
+    pub min_width_nm: f64,
+    /// Tightest centre-line bend, um.
+    pub min_bend_radius_um: f64,
+    /// Centre-to-centre spacing of rails between cells, um.
+    pub rail_pitch_um: f64,
+}
+
+/// A heater over a guide (thermo-optic phase shifter).
+#[derive(Clone, Debug, PartialEq)]
+pub struct ThermalShifter {
+    pub length_um: f64,
+    /// Electrical power for a phase of pi, mW.
+    pub p_pi_mw: f64,
+    /// Insertion loss, dB.
+    pub loss_db: f64,
+}
+
+/// A fixed phase from a widened guide section.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PassiveShifter {
+    /// How much wider than the guide the section is, nm.
+    pub width_step_nm: f64,
+    /// Loss of the section with its tapers, dB.
+    pub loss_db: f64,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct Loss {
+    pub propagation_db_per_cm: f64,
+    /// Per 90 degree bend at the minimum radius, dB.
+    pub bend_db: f64,
+    pub crossing_db: f64,
+}
+
+/// One-sigma fabrication and operating errors (language.md's keys).
+#[derive(Clone, Debug, PartialEq)]
+pub struct ProcessTolerances {
+    /// Die-level outward shift of every edge, nm.
+    pub edge_bias_nm: f64,
+    pub thickness_bias_nm: f64,
+    /// Each edge of each guide of each cell, independently, nm.
+    pub edge_local_nm: f64,
+    /// Along-z edge roughness, nm, with its correlation length, um.
+    pub roughness_nm: f64,
+    pub correlation_um: f64,
+    /// Phase-shifter error after setting, rad.
+    pub phase_rad: f64,
+    /// Laser wavelength error, nm.
+    pub wavelength_nm: f64,
+}
+
+/// Where the coupling law comes from.
+#[derive(Clone, Debug, PartialEq)]
+pub enum CouplingSource {
+    /// Computed by a waveguide model (`effective_index`) over these gaps.
+    Model {
+        model: String,
+        gaps_nm: Vec<f64>,
+        g_ref_nm: f64,
+    },
+    /// A measured or simulated table (one per wavelength).
+    Table {
+        tables: Vec<CouplingTable>,
+        g_ref_nm: f64,
+        /// Where it was read from.
+        from: String,
+    },
+}
+
+impl CouplingSource {
+    pub fn g_ref_nm(&self) -> f64 {
+        match self {
+            CouplingSource::Model { g_ref_nm, .. } | CouplingSource::Table { g_ref_nm, .. } => {
+                *g_ref_nm
+            }
+        }
+    }
+}
+
+/// Material names as process files write them.
+pub fn material_by_name(name: &str) -> Option<Material> {
+    Some(match name {
+        "silicon" => Material::SiliconLi1980,
+        "silica" => Material::SilicaMalitson1965,
+        "silicon_nitride" => Material::NitrideLuke2015,
+        "doped_silica" => Material::DopedSilica {
+            index_step: DOPED_SILICA_STEP,
+        },
+        "air" => Material::Constant { index: 1.0 },
+        _ => return None,
+    })
+}
+
+pub const MATERIAL_NAMES: [&str; 5] = [
+    "silicon",
+    "silica",
+    "silicon_nitride",
+    "doped_silica",
+    "air",
+];
+
+/// 0.75 % index contrast over fused silica at 1.55 um (common practice for
+/// planar lightwave circuits): 0.0075 x 1.444.
+pub const DOPED_SILICA_STEP: f64 = 0.0075 * 1.444;
