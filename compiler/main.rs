@@ -549,6 +549,12 @@ fn load_process(target: &str) -> Result<trilane::process::spec::Process, u8> {
     let path = Path::new(target);
     if !path.exists() {
         let hint = trilane::circuit::suggest::nearest(target, presets::NAMES)
+            .or_else(|| {
+                presets::NAMES
+                    .iter()
+                    .copied()
+                    .find(|n| n.starts_with(target))
+            })
             .map(|n| format!(" (did you mean `{n}`?)"))
             .unwrap_or_default();
         eprintln!(

@@ -126,6 +126,8 @@ enum Need {
 
 struct Reader {
     diags: Diagnostics,
+    /// Keys the file set, for the process's source notes.
+    set: Vec<String>,
 }
 
 impl Reader {
@@ -153,12 +155,16 @@ impl Reader {
             return;
         }
         *slot = x * scale;
+        self.set.push(key.to_owned());
     }
 
     fn material(&mut self, slot: &mut super::material::Material, v: &Text, key: &str) {
         let Some(v) = v else { return };
         match material_by_name(v.get_ref()) {
-            Some(m) => *slot = m,
+            Some(m) => {
+                *slot = m;
+                self.set.push(key.to_owned());
+            }
             None => {
                 let mut d = Diagnostic::error(
                     "process-value",
@@ -212,6 +218,7 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
     };
     let mut r = Reader {
         diags: Diagnostics::new(),
+        set: Vec::new(),
     };
     let base_name = raw
         .base
@@ -491,6 +498,19 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
                 g_ref_nm: g_ref,
             };
         }
+    }
+    if !r.set.is_empty() {
+        p.sources.insert(
+            0,
+            (
+                format!("set by {}", src.name),
+                format!(
+                    "{} (the other values are {}'s)",
+                    r.set.join(", "),
+                    base_name
+                ),
+            ),
+        );
     }
     let mut errors = Vec::new();
     if r.diags.has_errors() {

@@ -1,0 +1,152 @@
+//! `trilane process` as a user meets it, and the process model through the
+//! binary: presets, process files, coupling tables, the figure.
+
+use assert_cmd::Command;
+use std::path::Path;
+
+fn trilane() -> Command {
+    let mut c = Command::cargo_bin("trilane").unwrap();
+    c.env("NO_COLOR", "1");
+    c
+}
+
+fn json(args: &[&str]) -> serde_json::Value {
+    let out = trilane()
+        .arg("process")
+        .args(args)
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+#[test]
+fn every_preset_reports_with_the_documented_fields() {
+    for name in ["si220_wire", "sin400_strip", "silica_plc"] {
+        let doc = json(&[name]);
+        for key in [
+            "materials",
+            "neff",
+            "group_index",
+            "coupling",
+            "rules",
+            "tolerances",
+            "sources",
+        ] {
+            assert!(doc.get(key).is_some(), "{name}: missing {key}");
+        }
+        let c = &doc["coupling"];
+        for key in [
+            "model",
+            "k_ref_per_um",
+            "g_ref_nm",
+            "g_c_nm",
+            "fit_rms",
+            "table",
+        ] {
+            assert!(c.get(key).is_some(), "{name}: coupling.{key}");
+        }
+        assert_eq!(c["model"], "effective_index");
+        assert!(c["table"].as_array().unwrap().len() >= 10);
+    }
+}
+
+#[test]
+fn the_default_process_is_the_silicon_wire() {
+    // checks.md: the effective index method gives n_eff = 2.4919 for a
+    // 500 x 220 nm silicon strip and k(200 nm) = 0.062 rad/um.
+    let doc = json(&[]);
+    assert_eq!(doc["name"], "si220_wire");
+    assert!((doc["neff"].as_f64().unwrap() - 2.4919).abs() < 2e-3);
+    let row = doc["coupling"]["table"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["gap_nm"] == 200.0)
+        .unwrap()
+        .clone();
+    assert!((row["k_per_um"].as_f64().unwrap() - 0.062).abs() < 0.062 * 0.02);
+    // The report says which model produced the law and what it gets wrong.
+    let out = trilane().arg("process").output().unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("effective_index") && text.contains("overstates"),
+        "{text}"
+    );
+}
+
+#[test]
+fn a_table_is_fitted_back_to_the_law_it_came_from() {
+    // Generated from k = 0.0416 exp(-(g - 200 nm) / 113.5 nm), the shape of
+    // checks.md's full-vector fit: the fit must return the law.
+    let dir = tempfile::tempdir().unwrap();
+    let mut text = String::from("gap_nm,k_per_um\n");
+    for g in (100..=400).step_by(25) {
+        let k = 0.0416 * (-(f64::from(g) - 200.0) / 113.5).exp();
+        text.push_str(&format!("{g},{k:.10e}\n"));
+    }
+    let csv = dir.path().join("k.csv");
+    std::fs::write(&csv, text).unwrap();
+    let doc = json(&["si220_wire", "--table", csv.to_str().unwrap()]);
+    let c = &doc["coupling"];
+    assert_eq!(c["model"], "table");
+    assert!((c["k_ref_per_um"].as_f64().unwrap() - 0.0416).abs() < 1e-9);
+    assert!((c["g_c_nm"].as_f64().unwrap() - 113.5).abs() < 1e-6);
+    assert!(c["fit_rms"].as_f64().unwrap() < 1e-9);
+}
+
+#[test]
+fn the_plot_is_an_svg_with_its_labels() {
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("k.svg");
+    trilane()
+        .args(["process", "si220_wire", "--plot"])
+        .arg(&svg)
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.starts_with("<svg") || text.contains("<svg"));
+    assert!(text.contains("edge-to-edge gap (nm)") && text.contains("exponential fit"));
+}
+
+#[test]
+fn process_files_and_their_errors() {
+    // The example's process file overrides its base.
+    let ex = Path::new(env!("CARGO_MANIFEST_DIR")).join("circuits/fab/run7.toml");
+    let doc = json(&[ex.to_str().unwrap()]);
+    assert_eq!(doc["name"], "run7");
+    assert_eq!(doc["width_nm"], 480.0);
+    assert_eq!(doc["rules"]["min_gap_nm"], 120.0);
+    // Unknown keys and bad values: exit 1, located, with a hint.
+    let dir = tempfile::tempdir().unwrap();
+    let bad = dir.path().join("bad.toml");
+    std::fs::write(&bad, "base = \"si220_wire\"\n[rules]\nmin_gap_nm = -5\n").unwrap();
+    let out = trilane().arg("process").arg(&bad).output().unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("bad.toml:3:14") && err.contains("min_gap_nm"),
+        "{err}"
+    );
+    std::fs::write(&bad, "base = \"si221_wire\"\n").unwrap();
+    let out = trilane().arg("process").arg(&bad).output().unwrap();
+    assert!(String::from_utf8_lossy(&out.stderr).contains("did you mean `si220_wire`"));
+    // A name that is neither a preset nor a file: a usage error.
+    let out = trilane().args(["process", "si220"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    // A broken table: exit 1, the cell located.
+    let csv = dir.path().join("k.csv");
+    std::fs::write(&csv, "gap_nm,k_per_um\n100,0.15\n150,x\n200,0.06\n").unwrap();
+    let out = trilane()
+        .args(["process", "--table"])
+        .arg(&csv)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("k.csv:3:5"));
+}
