@@ -612,7 +612,10 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
             }
         }
     }
-    let c = match trilane::process::law::characterise(&p, &trilane::process::eim::EffectiveIndex) {
+    let c = match trilane::process::law::characterise(
+        &p,
+        &trilane::process::eim::EffectiveIndex::TE_LIKE,
+    ) {
         Ok(c) => c,
         Err(e) => {
             eprintln!("error: process {}: {e}", p.name);

@@ -360,8 +360,20 @@ mod tests {
                 None => assert_eq!(modes.len(), 1, "V = {v} < pi: one TE mode"),
             }
             // Mode count: TE_m is cut off at V = m pi (V over the full
-            // thickness), so floor(V / pi) + 1 modes.
+            // thickness), so floor(V / pi) + 1 modes; in a symmetric slab the
+            // TM modes have the same cut-offs (Kogelnik & Ramaswamy 1974).
             assert_eq!(modes.len(), (v / PI).floor() as usize + 1, "V = {v}");
+            let tm = slab.modes(Polarisation::Tm, l).unwrap();
+            assert_eq!(tm.len(), modes.len(), "V = {v}: TM count");
+            let r = (n1 / n2).powi(2);
+            for (m, n) in tm.iter().enumerate() {
+                let want = b_of_v(v, m, r);
+                assert!(
+                    (b(*n) - want).abs() < 1e-9,
+                    "V = {v}, TM{m}: {} vs {want}",
+                    b(*n)
+                );
+            }
         }
     }
 

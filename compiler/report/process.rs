@@ -33,6 +33,8 @@ pub struct JsonProcess {
     pub thickness_nm: f64,
     pub film_index: Option<f64>,
     pub neff: Option<f64>,
+    /// The TM-like fundamental mode, by the effective index method.
+    pub neff_tm_like: Option<f64>,
     pub group_index: Option<f64>,
     pub dneff_dw_per_nm: Option<f64>,
     pub dneff_dt_per_nm: Option<f64>,
@@ -172,6 +174,7 @@ pub fn to_json(p: &Process, c: &Characterisation) -> JsonProcess {
         thickness_nm: p.film.thickness_um * 1e3,
         film_index: c.film_index,
         neff: c.mode.as_ref().map(|m| m.neff),
+        neff_tm_like: c.tm_like_neff,
         group_index: c.mode.as_ref().map(|m| m.group_index),
         dneff_dw_per_nm: c.mode.as_ref().map(|m| m.dneff_dw_per_nm),
         dneff_dt_per_nm: c.mode.as_ref().map(|m| m.dneff_dt_per_nm),
@@ -289,6 +292,12 @@ pub fn to_text(p: &Process, c: &Characterisation) -> String {
     }
     if let Some(m) = &c.mode {
         let _ = writeln!(s, "  n_eff                   {:.5}", m.neff);
+        if let Some(tm) = c.tm_like_neff {
+            let _ = writeln!(
+                s,
+                "  n_eff of the TM-like    {tm:.5}   (cells use the TE-like mode above)"
+            );
+        }
         let _ = writeln!(s, "  group index             {:.4}", m.group_index);
         let _ = writeln!(
             s,
