@@ -150,3 +150,23 @@ fn process_files_and_their_errors() {
     assert_eq!(out.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&out.stderr).contains("k.csv:3:5"));
 }
+
+#[test]
+fn the_examples_in_docs_process_md_work() {
+    // The TOML and CSV examples of the manual, run as a user would copy them.
+    let doc = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/process.md")).unwrap();
+    // The block that starts with `fence` (its first line included after the backticks).
+    let block = |fence: &str| {
+        let start = doc.find(fence).unwrap() + fence.find('\n').unwrap() + 1;
+        doc[start..start + doc[start..].find("```").unwrap()].to_owned()
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let toml = dir.path().join("doc.toml");
+    std::fs::write(&toml, block("```toml\n")).unwrap();
+    let d = json(&[toml.to_str().unwrap()]);
+    assert_eq!(d["name"], "run7");
+    let csv = dir.path().join("doc.csv");
+    std::fs::write(&csv, block("```\n# measured")).unwrap();
+    let d = json(&["--table", csv.to_str().unwrap()]);
+    assert_eq!(d["coupling"]["by_wavelength"].as_array().unwrap().len(), 2);
+}
