@@ -13,10 +13,11 @@
 //!    `optics::simulate` is what `trilane simulate` computes
 //! 4. `compile::optimise`  circuit -> circuit: the passes (merge, identities,
 //!    output phases), each reporting what it removed
-//! 5. `report`            text tables and JSON wire types
+//! 5. `process::law::characterise` a `Process` (preset or TOML file) through
+//!    a `WaveguideModel` -> its mode figures and coupling law
+//! 6. `report`            text tables, JSON wire types, figures
 //!
-//! The process, cell, mesh strategies, layout and budget stages follow as
-//! they land (see README.md for what works today).
+//! The cell, mesh strategies, layout and budget stages follow as they land (see README.md for what works today).
 //!
 //! The core takes text and values and returns values; only `main.rs` touches
 //! the file system, and diagnostics are data until `diagnostic::render`.
