@@ -35,8 +35,21 @@ use circuit::{FileLoader, Program};
 use diagnostic::Diagnostics;
 use source::Source;
 
-/// The front end, whole: parse, elaborate, validate.
+/// The front end, whole: parse, elaborate, validate, and make sure every
+/// chip's process exists and reads cleanly.
 pub fn check(source: &Source, files: &dyn FileLoader) -> Result<Program, Diagnostics> {
     let ast = syntax::parse(source)?;
-    circuit::elaborate(&ast, files)
+    let program = circuit::elaborate(&ast, files)?;
+    let mut problems = Diagnostics::new();
+    for c in &program.circuits {
+        if let Err(d) = process::resolve(c.process.as_ref(), files) {
+            problems.push(d);
+        }
+    }
+    if problems.has_errors() {
+        let mut all = program.warnings;
+        all.extend(problems);
+        return Err(all.sorted());
+    }
+    Ok(program)
 }

@@ -154,7 +154,9 @@ fn process_files_and_their_errors() {
 #[test]
 fn the_examples_in_docs_process_md_work() {
     // The TOML and CSV examples of the manual, run as a user would copy them.
-    let doc = std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/process.md")).unwrap();
+    let doc =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("docs/process.md"))
+            .unwrap();
     // The block that starts with `fence` (its first line included after the backticks).
     let block = |fence: &str| {
         let start = doc.find(fence).unwrap() + fence.find('\n').unwrap() + 1;
