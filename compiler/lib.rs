@@ -22,6 +22,7 @@
 //! The core takes text and values and returns values; only `main.rs` touches
 //! the file system, and diagnostics are data until `diagnostic::render`.
 
+pub mod cell;
 pub mod circuit;
 pub mod compile;
 pub mod diagnostic;
