@@ -3,4 +3,5 @@
 //! geometric cell, the coupler and MZI baselines and the sensitivity
 //! analysis follow.
 
+pub mod geometric;
 pub mod integrate;

@@ -41,7 +41,8 @@ pub struct Characterisation {
     pub materials: Vec<MaterialReport>,
     /// The film's TE0 slab index (the effective index method's first step).
     pub film_index: Option<f64>,
-    /// Figures of one strip of the process width (a model's, not a table's).
+    /// Figures of one strip of the process width, by the model (also when
+    /// the coupling law comes from a table).
     pub mode: Option<ModeFigures>,
     /// The TM-like fundamental mode's index by the effective index method
     /// (none when the strip guides no TM-like mode).
@@ -64,6 +65,10 @@ pub enum ProcessError {
     Solver(#[from] SolverError),
     #[error("coupling law: {0}")]
     Coupling(#[from] CouplingError),
+    #[error(
+        "the coupling table has no column at the process wavelength {want_nm} nm (it has {have}); add one, or set the process's wavelength_nm"
+    )]
+    NoTableAtWavelength { want_nm: f64, have: String },
 }
 
 /// Characterises a process with `model` (used for the mode figures and,
@@ -112,7 +117,25 @@ pub fn characterise(
                 }],
             )
         }
-        CouplingSource::Table { tables, .. } => ("table".to_owned(), tables.clone()),
+        CouplingSource::Table { tables, .. } => {
+            // The law at the process wavelength comes first; a table without
+            // it is refused rather than read at the wrong wavelength.
+            let mut t = tables.clone();
+            let at = t.iter().position(|x| (x.wavelength_um - l).abs() < 5e-4);
+            let Some(at) = at else {
+                return Err(ProcessError::NoTableAtWavelength {
+                    want_nm: (l * 1e3).round(),
+                    have: t
+                        .iter()
+                        .map(|x| format!("{:.0} nm", x.wavelength_um * 1e3))
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                });
+            };
+            let first = t.remove(at);
+            t.insert(0, first);
+            ("table".to_owned(), t)
+        }
     };
     let laws = tables
         .into_iter()
@@ -124,7 +147,11 @@ pub fn characterise(
             })
         })
         .collect::<Result<Vec<_>, ProcessError>>()?;
-    let three_guides = {
+    // A model check: coupled-mode theory against the model's own three-guide
+    // supermodes. A table has no three-guide data, so it gets none.
+    let three_guides = if matches!(process.coupling, CouplingSource::Table { .. }) {
+        None
+    } else {
         let g = g_ref * 1e-3;
         let k_pair = eim::coupling_per_um(model, film, width_um, g, l)?;
         let m3 = model.supermodes(film, &Strips::triple(width_um, g), l)?;

@@ -283,7 +283,7 @@ pub fn to_text(p: &Process, c: &Characterisation) -> String {
     }
     let _ = writeln!(
         s,
-        "\nguide {:.0} x {:.0} nm (width x thickness), TE-like fundamental mode",
+        "\nguide {:.0} x {:.0} nm (width x thickness), TE-like fundamental mode, by the effective index method",
         p.width_nm,
         p.film.thickness_um * 1e3
     );

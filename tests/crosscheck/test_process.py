@@ -551,10 +551,6 @@ def test_table_single_column(report, tmp_path):
     assert only["wavelength_um"] == 1.55
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="trilane takes the first column as the process's law even when it is not at the process's wavelength",
-)
 def test_table_law_is_the_process_wavelength_whatever_the_column_order(report, tmp_path):
     f = tmp_path / "k_swapped.csv"
     gaps = _write_table(f, [1530, 1550])
@@ -564,3 +560,13 @@ def test_table_law_is_the_process_wavelength_whatever_the_column_order(report, t
     assert rel(by[1550]["k_ref_per_um"], k_ref) < 1e-9  # per wavelength: right
     assert rel(c["k_ref_per_um"], k_ref) < 1e-9  # the process's law (1550 nm): wrong today
     assert rel(c["g_c_nm"], g_c) < 1e-9
+
+
+def test_a_table_without_the_process_wavelength_is_refused(trilane, tmp_path):
+    # A table measured at 1310 nm cannot be the 1550 nm law: trilane must
+    # refuse it rather than design at the wrong wavelength.
+    t = tmp_path / "t.csv"
+    t.write_text("gap_nm,k_per_um@1310nm\n100,0.13\n200,0.055\n300,0.023\n")
+    r = trilane("process", "--table", str(t))
+    assert r.returncode == 1
+    assert "1550 nm" in r.stderr and "1310 nm" in r.stderr
