@@ -115,6 +115,53 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Design one cell and show it: geometry, transfer matrix, leakage, and
+    /// how far the analytic design was from the refined one
+    ///
+    /// The geometric cell is designed analytically on the process's
+    /// exponential fit, then refined on its smooth coupling law with the
+    /// rails' path detuning until the split and the leakage into the
+    /// auxiliary guide are within 1e-6. `coupler` is the directional-coupler
+    /// baseline of the same split.
+    Cell {
+        /// The rotation angle theta in (0, pi/2], radians (cross power sin^2 theta)
+        #[arg(
+            long,
+            value_name = "RAD",
+            conflicts_with = "split",
+            required_unless_present = "split",
+            allow_negative_numbers = true
+        )]
+        theta: Option<f64>,
+        /// The cross power fraction in (0, 1] instead of theta
+        #[arg(long, value_name = "C", allow_negative_numbers = true)]
+        split: Option<f64>,
+        /// The process: a preset name or a process file
+        #[arg(long, value_name = "NAME|FILE", default_value = "si220_wire")]
+        process: String,
+        /// Cell kind
+        #[arg(long = "cell", value_enum, default_value = "geometric")]
+        kind: CellKindArg,
+        /// Geometric cells: the shortest cell for this theta, or the uniform
+        /// length a mesh shares
+        #[arg(long = "cell-length", value_enum, default_value = "shortest")]
+        length: LengthArg,
+        /// Print one JSON document on stdout instead of the summary
+        #[arg(long)]
+        json: bool,
+    },
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum CellKindArg {
+    Geometric,
+    Coupler,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum LengthArg {
+    Uniform,
+    Shortest,
 }
 
 /// The front end recurses over expressions (bounded by the parser's
@@ -152,6 +199,14 @@ fn main() -> ExitCode {
                 plot,
                 json,
             } => process(&target, table.as_deref(), plot.as_deref(), json),
+            Command::Cell {
+                theta,
+                split,
+                process,
+                kind,
+                length,
+                json,
+            } => cell(theta, split, &process, kind, length, json),
         });
     let code = match work.map(|h| h.join()) {
         Ok(Ok(code)) => code,
@@ -640,6 +695,58 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
         serde_json::to_string_pretty(&doc).expect("the report serialises") + "\n"
     } else {
         trilane::report::process::to_text(&p, &c)
+    };
+    let _ = std::io::stdout().lock().write_all(text.as_bytes());
+    0
+}
+
+fn cell(
+    theta: Option<f64>,
+    split: Option<f64>,
+    process: &str,
+    kind: CellKindArg,
+    length: LengthArg,
+    json: bool,
+) -> u8 {
+    use trilane::cell::{CellKind, geometric::LengthRule};
+    let theta = match (theta, split) {
+        (Some(t), _) => t,
+        (None, Some(c)) if (0.0..=1.0).contains(&c) && c > 0.0 => c.sqrt().asin(),
+        (None, Some(c)) => {
+            eprintln!("error: --split takes the cross power, a fraction in (0, 1], got {c}");
+            return 2;
+        }
+        (None, None) => unreachable!("clap requires one"),
+    };
+    if !(theta > 0.0 && theta <= std::f64::consts::FRAC_PI_2 + 1e-12) {
+        eprintln!(
+            "error: --theta must be in (0, pi/2] = (0, 1.570796], got {theta} (mesh blocks need no more: the rest is phase shifters)"
+        );
+        return 2;
+    }
+    let p = match load_process(process) {
+        Ok(p) => p,
+        Err(code) => return code,
+    };
+    let kind = match kind {
+        CellKindArg::Geometric => CellKind::Geometric,
+        CellKindArg::Coupler => CellKind::Coupler,
+    };
+    let rule = match length {
+        LengthArg::Uniform => LengthRule::Uniform,
+        LengthArg::Shortest => LengthRule::Shortest,
+    };
+    let (design, c) = match trilane::cell::design(kind, theta, &p, rule) {
+        Ok(x) => x,
+        Err(e) => {
+            eprintln!("error: {e}");
+            return 1;
+        }
+    };
+    let text = if json {
+        trilane::report::cell::to_json(&design, &p, &c)
+    } else {
+        trilane::report::cell::to_text(&design, &p, &c)
     };
     let _ = std::io::stdout().lock().write_all(text.as_bytes());
     0

@@ -172,3 +172,50 @@ fn the_examples_in_docs_process_md_work() {
     let d = json(&["--table", csv.to_str().unwrap()]);
     assert_eq!(d["coupling"]["by_wavelength"].as_array().unwrap().len(), 2);
 }
+
+#[test]
+fn a_cell_is_designed_and_refined() {
+    // physics.md section 3: the refined geometric cell reaches 1e-6 in
+    // split and leakage; the analytic design on the exponential fit misses.
+    let out = trilane()
+        .args(["cell", "--theta", "0.7853981633974483", "--json"])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let d: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in [
+        "kind",
+        "theta",
+        "gap_upper_nm",
+        "gap_lower_nm",
+        "bend_per_m",
+        "length_um",
+        "width_nm",
+        "coupling",
+        "transfer",
+        "rail_block",
+        "leakage",
+        "analytic",
+    ] {
+        assert!(d.get(key).is_some(), "missing {key}");
+    }
+    assert!(d["split_error"].as_f64().unwrap() < 1e-6 && d["leakage"].as_f64().unwrap() < 1e-6);
+    assert!(d["analytic"]["split_error"].as_f64().unwrap() > 1e-4);
+    assert!(d["gap_lower_nm"].as_f64().unwrap() >= 100.0 - 0.01);
+    // The coupler of the same split, by --split.
+    let out = trilane()
+        .args(["cell", "--split", "0.5", "--cell", "coupler", "--json"])
+        .output()
+        .unwrap();
+    let c: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let cross = c["rail_block"]["re"][1][0].as_f64().unwrap().powi(2)
+        + c["rail_block"]["im"][1][0].as_f64().unwrap().powi(2);
+    assert!((cross - 0.5).abs() < 1e-9);
+    // Out of range: a usage error.
+    let out = trilane().args(["cell", "--theta", "2"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+}

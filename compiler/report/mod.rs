@@ -2,6 +2,7 @@
 //! (their own structs, never serde derives on the IR). The field names are
 //! documented in docs/json.md.
 
+pub mod cell;
 pub mod process;
 pub mod simulate;
 
