@@ -36,6 +36,20 @@ pub struct CouplerDesign {
 /// exp(-1500 / g_c) of the peak, far below any tolerance.
 const BEND_RISE_NM: f64 = 1500.0;
 
+/// The coupler's 2 x 2 transfer with detunings `d` of its two guides.
+pub fn transfer_detuned(
+    law: &SmoothLaw,
+    gap: f64,
+    straight: f64,
+    radius_um: f64,
+    reach: f64,
+    d: [f64; 2],
+) -> Result<DMatrix<Complex64>, CellError> {
+    transfer(law, gap, straight, radius_um, reach, TOL, d)
+}
+
+const TOL: f64 = 1e-11;
+
 fn transfer(
     law: &SmoothLaw,
     gap: f64,
@@ -43,6 +57,7 @@ fn transfer(
     radius_um: f64,
     reach: f64,
     tol: f64,
+    d: [f64; 2],
 ) -> Result<DMatrix<Complex64>, CellError> {
     let total = straight + 2.0 * reach;
     let h = |z: f64| {
@@ -57,7 +72,7 @@ fn transfer(
         let g = gap + x * x / radius_um * 1e3;
         let k = law.k_per_um(g);
         let c = |v: f64| Complex64::new(v, 0.0);
-        DMatrix::from_row_slice(2, 2, &[c(0.0), c(k), c(k), c(0.0)])
+        DMatrix::from_row_slice(2, 2, &[c(d[0]), c(k), c(k), c(d[1])])
     };
     // The straight-to-bend joins have a jump in dk/dz: integrate piecewise.
     let mut u = DMatrix::identity(2, 2);
@@ -87,10 +102,10 @@ pub fn design(
     let bends = k0 * (std::f64::consts::PI * bend_radius_um * g_c_um).sqrt();
     let analytic = ((theta - bends) / k0).max(0.0);
     let reach = (BEND_RISE_NM * 1e-3 * bend_radius_um).sqrt();
-    let tol = 1e-11;
+    let tol = TOL;
     // Newton on the straight length: d(area)/d(straight) = k0.
     let mut straight = analytic;
-    let mut u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol)?;
+    let mut u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol, [0.0; 2])?;
     for _ in 0..20 {
         let cross = u[(1, 0)].norm().atan2(u[(0, 0)].norm());
         let miss = theta - cross;
@@ -98,7 +113,7 @@ pub fn design(
             break;
         }
         straight = (straight + miss / k0).max(0.0);
-        u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol)?;
+        u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol, [0.0; 2])?;
         if straight == 0.0 {
             break;
         }

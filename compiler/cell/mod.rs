@@ -8,6 +8,7 @@ pub mod coupler;
 pub mod geometric;
 pub mod integrate;
 pub mod refine;
+pub mod sensitivity;
 
 use crate::process::eim::{EffectiveIndex, WaveguideModel};
 use crate::process::law::{Characterisation, ProcessError, characterise};
