@@ -743,10 +743,29 @@ fn cell(
             return 1;
         }
     };
+    // The other kind of the same split, side by side.
+    let other = match kind {
+        CellKind::Geometric => CellKind::Coupler,
+        CellKind::Coupler => CellKind::Geometric,
+    };
+    let comparison = match trilane::cell::design(other, theta, &p, rule) {
+        Ok((d, _)) => d,
+        Err(e) => {
+            eprintln!("error: the comparison cell: {e}");
+            return 1;
+        }
+    };
+    let rows = match trilane::cell::sensitivity::table(&design, &comparison, &p) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("error: sensitivity: {e}");
+            return 1;
+        }
+    };
     let text = if json {
-        trilane::report::cell::to_json(&design, &p, &c)
+        trilane::report::cell::to_json(&design, &p, &c, &rows, &comparison)
     } else {
-        trilane::report::cell::to_text(&design, &p, &c)
+        trilane::report::cell::to_text(&design, &p, &c, &rows, &comparison)
     };
     let _ = std::io::stdout().lock().write_all(text.as_bytes());
     0

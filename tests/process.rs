@@ -206,6 +206,15 @@ fn a_cell_is_designed_and_refined() {
     assert!(d["split_error"].as_f64().unwrap() < 1e-6 && d["leakage"].as_f64().unwrap() < 1e-6);
     assert!(d["analytic"]["split_error"].as_f64().unwrap() > 1e-4);
     assert!(d["gap_lower_nm"].as_f64().unwrap() >= 100.0 - 0.01);
+    // The sensitivity table, side by side with the coupler: under the edge
+    // bias the geometric cell's split moves less (physics.md section 3).
+    let rows = d["sensitivity"].as_array().unwrap();
+    let edge = rows.iter().find(|r| r["source"] == "edge_bias").unwrap();
+    assert_eq!(edge["comparison_kind"], "coupler");
+    assert!(
+        edge["cell"]["split_error"].as_f64().unwrap().abs()
+            < edge["comparison"]["split_error"].as_f64().unwrap().abs()
+    );
     // The coupler of the same split, by --split.
     let out = trilane()
         .args(["cell", "--split", "0.5", "--cell", "coupler", "--json"])

@@ -151,6 +151,111 @@ pub fn nominal_block(cell: &CellDesign) -> DMatrix<Complex64> {
     }
 }
 
+/// One row of the sensitivity table: a source at one sigma of the process
+/// tolerances, and what it does to a cell and to its comparison cell.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SensitivityRow {
+    pub source: &'static str,
+    /// What the sigma is: `"2 nm edge shift"`.
+    pub sigma_text: String,
+    pub cell: Response,
+    pub comparison: Response,
+}
+
+/// Every source of language.md's tolerance keys that acts on a single cell,
+/// at +1 sigma of the process's tolerances. `edge_local` acts on one edge
+/// (one-sided) and, as a width error of one guide (both edges, sigma
+/// sqrt(2) times that), on each guide in turn. Sources the process sets to
+/// zero are left out; the wavelength, when zero, is shown at 1 nm.
+pub fn table(
+    cell: &CellDesign,
+    comparison: &CellDesign,
+    p: &Process,
+) -> Result<Vec<SensitivityRow>, SensitivityError> {
+    let t = &p.tolerances;
+    let local_width = t.edge_local_nm * 2f64.sqrt();
+    let wl = if t.wavelength_nm > 0.0 {
+        t.wavelength_nm
+    } else {
+        1.0
+    };
+    let rows: Vec<(&'static str, String, Perturbation)> = vec![
+        (
+            "edge_bias",
+            format!(
+                "{} nm edge shift (guides +{} nm, gaps -{} nm)",
+                t.edge_bias_nm,
+                2.0 * t.edge_bias_nm,
+                2.0 * t.edge_bias_nm
+            ),
+            Perturbation {
+                edge_bias_nm: t.edge_bias_nm,
+                ..Default::default()
+            },
+        ),
+        (
+            "thickness_bias",
+            format!("{} nm thicker film", t.thickness_bias_nm),
+            Perturbation {
+                thickness_nm: t.thickness_bias_nm,
+                ..Default::default()
+            },
+        ),
+        (
+            "edge_local, one edge",
+            format!("{} nm on the upper rail's inner edge", t.edge_local_nm),
+            Perturbation {
+                one_sided_upper_nm: t.edge_local_nm,
+                ..Default::default()
+            },
+        ),
+        (
+            "edge_local, upper rail width",
+            format!("{local_width:.2} nm wider"),
+            Perturbation {
+                width_nm: [local_width, 0.0, 0.0],
+                ..Default::default()
+            },
+        ),
+        (
+            "edge_local, auxiliary width",
+            format!("{local_width:.2} nm wider"),
+            Perturbation {
+                width_nm: [0.0, local_width, 0.0],
+                ..Default::default()
+            },
+        ),
+        (
+            "edge_local, lower rail width",
+            format!("{local_width:.2} nm wider"),
+            Perturbation {
+                width_nm: [0.0, 0.0, local_width],
+                ..Default::default()
+            },
+        ),
+        (
+            "wavelength",
+            format!("{wl} nm longer"),
+            Perturbation {
+                wavelength_nm: wl,
+                ..Default::default()
+            },
+        ),
+    ];
+    let (n1, n2) = (nominal_block(cell), nominal_block(comparison));
+    rows.into_iter()
+        .filter(|(_, _, e)| *e != Perturbation::default())
+        .map(|(source, sigma_text, e)| {
+            Ok(SensitivityRow {
+                source,
+                sigma_text,
+                cell: respond(cell, p, &e, &n1)?,
+                comparison: respond(comparison, p, &e, &n2)?,
+            })
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -3,6 +3,7 @@
 
 use super::{JsonMatrix, complex_text};
 use crate::cell::CellDesign;
+use crate::cell::sensitivity::SensitivityRow;
 use crate::process::law::Characterisation;
 use crate::process::spec::Process;
 use serde::Serialize;
@@ -79,7 +80,62 @@ fn law(c: &Characterisation) -> JsonLaw {
     }
 }
 
-pub fn to_json(cell: &CellDesign, p: &Process, c: &Characterisation) -> String {
+#[derive(Serialize)]
+pub struct JsonResponse {
+    pub split_error: f64,
+    pub leakage: f64,
+    pub infidelity: f64,
+    pub deviation: f64,
+}
+
+#[derive(Serialize)]
+pub struct JsonSensitivity {
+    pub source: &'static str,
+    pub sigma: String,
+    pub cell: JsonResponse,
+    pub comparison_kind: &'static str,
+    pub comparison: JsonResponse,
+}
+
+fn response(r: &crate::cell::sensitivity::Response) -> JsonResponse {
+    JsonResponse {
+        split_error: r.split_error,
+        leakage: r.leakage,
+        infidelity: (1.0 - r.fidelity).max(0.0),
+        deviation: r.deviation,
+    }
+}
+
+fn kind_name(cell: &CellDesign) -> &'static str {
+    match cell {
+        CellDesign::Geometric(_) => "geometric",
+        CellDesign::Coupler(_) => "coupler",
+    }
+}
+
+pub fn to_json(
+    cell: &CellDesign,
+    p: &Process,
+    c: &Characterisation,
+    sensitivity: &[SensitivityRow],
+    comparison: &CellDesign,
+) -> String {
+    let rows: Vec<JsonSensitivity> = sensitivity
+        .iter()
+        .map(|r| JsonSensitivity {
+            source: r.source,
+            sigma: r.sigma_text.clone(),
+            cell: response(&r.cell),
+            comparison_kind: kind_name(comparison),
+            comparison: response(&r.comparison),
+        })
+        .collect();
+    let mut value = serde_json::to_value(cell_json(cell, p, c)).expect("the report serialises");
+    value["sensitivity"] = serde_json::to_value(rows).expect("the report serialises");
+    serde_json::to_string_pretty(&value).expect("the report serialises") + "\n"
+}
+
+fn cell_json(cell: &CellDesign, p: &Process, c: &Characterisation) -> serde_json::Value {
     let text = match cell {
         CellDesign::Geometric(r) => serde_json::to_string_pretty(&JsonGeometric {
             kind: "geometric",
@@ -125,7 +181,7 @@ pub fn to_json(cell: &CellDesign, p: &Process, c: &Characterisation) -> String {
             analytic_straight_um: d.analytic_straight_um,
         }),
     };
-    text.expect("the report serialises") + "\n"
+    serde_json::from_str(&text.expect("the report serialises")).expect("valid JSON")
 }
 
 fn matrix_lines(m: &nalgebra::DMatrix<num_complex::Complex64>, indent: &str) -> String {
@@ -139,7 +195,13 @@ fn matrix_lines(m: &nalgebra::DMatrix<num_complex::Complex64>, indent: &str) -> 
     s
 }
 
-pub fn to_text(cell: &CellDesign, p: &Process, c: &Characterisation) -> String {
+pub fn to_text(
+    cell: &CellDesign,
+    p: &Process,
+    c: &Characterisation,
+    sensitivity: &[SensitivityRow],
+    comparison: &CellDesign,
+) -> String {
     let mut s = String::new();
     let l = c.law();
     match cell {
@@ -235,6 +297,41 @@ pub fn to_text(cell: &CellDesign, p: &Process, c: &Characterisation) -> String {
                 d.analytic_straight_um
             );
         }
+    }
+    if !sensitivity.is_empty() {
+        let _ = writeln!(
+            s,
+            "\nsensitivity at one sigma of {}'s tolerances (against each cell's nominal block; 1-F loss-normalised, phases included)",
+            p.name
+        );
+        let _ = writeln!(
+            s,
+            "  {:<30} {:<44} {:>10} {:>9} {:>9}   {:>10} {:>9}",
+            "source",
+            "sigma",
+            format!("{} split", &kind_name(cell)[..3]),
+            "leakage",
+            "1-F",
+            format!("{} split", &kind_name(comparison)[..3]),
+            "1-F"
+        );
+        for r in sensitivity {
+            let _ = writeln!(
+                s,
+                "  {:<30} {:<44} {:>+10.2e} {:>9.2e} {:>9.2e}   {:>+10.2e} {:>9.2e}",
+                r.source,
+                r.sigma_text,
+                r.cell.split_error,
+                r.cell.leakage,
+                (1.0 - r.cell.fidelity).max(0.0),
+                r.comparison.split_error,
+                (1.0 - r.comparison.fidelity).max(0.0)
+            );
+        }
+        let _ = writeln!(
+            s,
+            "  (width errors of one guide detune it for the cell's whole length: most of that 1-F is a phase the phase shifters can re-tune after fabrication)"
+        );
     }
     if c.model == "effective_index" {
         let _ = writeln!(
