@@ -70,9 +70,7 @@ fn transfer(
         };
         // x^2 / R in um -> nm
         let g = gap + x * x / radius_um * 1e3;
-        let k = law.k_per_um(g);
-        let c = |v: f64| Complex64::new(v, 0.0);
-        DMatrix::from_row_slice(2, 2, &[c(d[0]), c(k), c(k), c(d[1])])
+        integrate::two_guide_h(law.k_per_um(g), d)
     };
     // The straight-to-bend joins have a jump in dk/dz: integrate piecewise.
     let mut u = DMatrix::identity(2, 2);

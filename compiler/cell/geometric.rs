@@ -127,7 +127,7 @@ pub fn hamiltonian<'a>(
     k_of_gap: &'a dyn Fn(f64) -> f64,
     scale: f64,
     d: [f64; 3],
-) -> impl Fn(f64) -> DMatrix<Complex64> + 'a {
+) -> impl Fn(f64) -> nalgebra::SMatrix<Complex64, 3, 3> + 'a {
     move |z| {
         let (gu, gl) = design.gaps_nm(z);
         integrate::three_guide_h(scale * k_of_gap(gu), scale * k_of_gap(gl), d)

@@ -18,7 +18,7 @@
 //! Norsett & Wanner, Solving ODEs I, 1993, section II.4); n doubles until the
 //! estimate meets the tolerance.
 
-use nalgebra::DMatrix;
+use nalgebra::{DMatrix, SMatrix};
 use num_complex::Complex64;
 
 /// The result of an integration.
@@ -49,20 +49,15 @@ pub enum IntegrateError {
 /// Largest step count tried before giving up.
 pub const MAX_STEPS: usize = 1 << 20;
 
-fn commutator(a: &DMatrix<Complex64>, b: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    a * b - b * a
-}
-
 /// `exp(-i M)` for a small Hermitian M, by scaling and squaring with a
 /// Taylor series (Moler & Van Loan, SIAM Review 45, 3, 2003, method 3):
 /// M is scaled to norm below 1/4, where 14 terms reach rounding level, and
 /// the result squared back. An eigen-decomposition would be exactly unitary
 /// in exact arithmetic but is less accurate for the nearly degenerate M of
 /// the cell ends, where the couplings vanish.
-pub fn expm_hermitian(m: &DMatrix<Complex64>) -> DMatrix<Complex64> {
-    let n = m.nrows();
-    let norm: f64 = (0..n)
-        .map(|i| (0..n).map(|j| m[(i, j)].norm()).sum::<f64>())
+pub fn expm_hermitian<const N: usize>(m: &SMatrix<Complex64, N, N>) -> SMatrix<Complex64, N, N> {
+    let norm: f64 = (0..N)
+        .map(|i| (0..N).map(|j| m[(i, j)].norm()).sum::<f64>())
         .fold(0.0, f64::max);
     let squarings = if norm > 0.25 {
         (norm / 0.25).log2().ceil() as u32
@@ -70,49 +65,56 @@ pub fn expm_hermitian(m: &DMatrix<Complex64>) -> DMatrix<Complex64> {
         0
     };
     let a = m * Complex64::new(0.0, -1.0 / f64::from(1u32 << squarings));
-    let mut term = DMatrix::identity(n, n);
-    let mut sum = DMatrix::identity(n, n);
+    let mut term = SMatrix::<Complex64, N, N>::identity();
+    let mut sum = term;
     for k in 1..=14 {
-        term = &term * &a * Complex64::new(1.0 / f64::from(k), 0.0);
-        sum += &term;
+        term = term * a * Complex64::new(1.0 / f64::from(k), 0.0);
+        sum += term;
     }
     for _ in 0..squarings {
-        sum = &sum * &sum;
+        sum = sum * sum;
     }
     sum
 }
 
 /// One Magnus step of length h from z.
-fn step(h_of_z: &dyn Fn(f64) -> DMatrix<Complex64>, z: f64, h: f64) -> DMatrix<Complex64> {
+fn step<const N: usize>(
+    h_of_z: &dyn Fn(f64) -> SMatrix<Complex64, N, N>,
+    z: f64,
+    h: f64,
+) -> SMatrix<Complex64, N, N> {
     let s = 3f64.sqrt() / 6.0;
     let h1 = h_of_z(z + (0.5 - s) * h);
     let h2 = h_of_z(z + (0.5 + s) * h);
     // M = i Omega = h (H1 + H2) / 2 - i (sqrt3/12) h^2 [H2, H1]
-    let m = (&h1 + &h2) * Complex64::new(h / 2.0, 0.0)
-        - commutator(&h2, &h1) * Complex64::new(0.0, 3f64.sqrt() / 12.0 * h * h);
+    let m = (h1 + h2) * Complex64::new(h / 2.0, 0.0)
+        - (h2 * h1 - h1 * h2) * Complex64::new(0.0, 3f64.sqrt() / 12.0 * h * h);
     expm_hermitian(&m)
 }
 
 /// The propagator on `n` equal steps.
-pub fn propagate_fixed(
-    h_of_z: &dyn Fn(f64) -> DMatrix<Complex64>,
+pub fn propagate_fixed<const N: usize>(
+    h_of_z: &dyn Fn(f64) -> SMatrix<Complex64, N, N>,
     z0: f64,
     z1: f64,
     n: usize,
-) -> DMatrix<Complex64> {
-    let dim = h_of_z(z0).nrows();
+) -> SMatrix<Complex64, N, N> {
     let h = (z1 - z0) / n as f64;
-    let mut u = DMatrix::identity(dim, dim);
+    let mut u = SMatrix::<Complex64, N, N>::identity();
     for k in 0..n {
         u = step(h_of_z, z0 + k as f64 * h, h) * u;
     }
     u
 }
 
+fn max_entry<const N: usize>(m: &SMatrix<Complex64, N, N>) -> f64 {
+    m.iter().map(|z| z.norm()).fold(0.0, f64::max)
+}
+
 /// The propagator from z0 to z1 to the tolerance `tol` (largest entry),
 /// starting from `n0` steps.
-pub fn propagate(
-    h_of_z: &dyn Fn(f64) -> DMatrix<Complex64>,
+pub fn propagate<const N: usize>(
+    h_of_z: &dyn Fn(f64) -> SMatrix<Complex64, N, N>,
     z0: f64,
     z1: f64,
     tol: f64,
@@ -136,11 +138,7 @@ pub fn propagate(
     let mut previous: Option<f64> = None;
     loop {
         let fine = propagate_fixed(h_of_z, z0, z1, 2 * n);
-        let estimate = (&fine - &coarse)
-            .iter()
-            .map(|z| z.norm())
-            .fold(0.0, f64::max)
-            / 15.0;
+        let estimate = max_entry(&(fine - coarse)) / 15.0;
         // Accept only in the asymptotic range: the last halving cut the
         // difference by close to 16 (at least 8), or it is at rounding level.
         let asymptotic =
@@ -148,7 +146,7 @@ pub fn propagate(
         previous = Some(estimate);
         if estimate <= tol && asymptotic {
             return Ok(Propagator {
-                matrix: fine,
+                matrix: DMatrix::from_fn(N, N, |i, j| fine[(i, j)]),
                 error_estimate: estimate,
                 steps: 2 * n,
             });
@@ -167,23 +165,25 @@ pub fn propagate(
 
 /// H of three guides (upper rail, auxiliary, lower rail) with couplings
 /// k_u, k_l to the auxiliary guide and detunings d_u, d_m, d_l (rad/um).
-pub fn three_guide_h(k_u: f64, k_l: f64, d: [f64; 3]) -> DMatrix<Complex64> {
+pub fn three_guide_h(k_u: f64, k_l: f64, d: [f64; 3]) -> SMatrix<Complex64, 3, 3> {
     let c = |x: f64| Complex64::new(x, 0.0);
-    DMatrix::from_row_slice(
-        3,
-        3,
-        &[
-            c(d[0]),
-            c(k_u),
-            c(0.0),
-            c(k_u),
-            c(d[1]),
-            c(k_l),
-            c(0.0),
-            c(k_l),
-            c(d[2]),
-        ],
+    SMatrix::<Complex64, 3, 3>::new(
+        c(d[0]),
+        c(k_u),
+        c(0.0),
+        c(k_u),
+        c(d[1]),
+        c(k_l),
+        c(0.0),
+        c(k_l),
+        c(d[2]),
     )
+}
+
+/// H of two guides with coupling k and detunings d.
+pub fn two_guide_h(k: f64, d: [f64; 2]) -> SMatrix<Complex64, 2, 2> {
+    let c = |x: f64| Complex64::new(x, 0.0);
+    SMatrix::<Complex64, 2, 2>::new(c(d[0]), c(k), c(k), c(d[1]))
 }
 
 #[cfg(test)]
@@ -232,12 +232,12 @@ mod tests {
         // k^2 / (k^2 + d^2), at z = pi / (2 sqrt(k^2 + d^2)).
         let (k, d) = (0.04f64, 0.03f64);
         let c = |x: f64| Complex64::new(x, 0.0);
-        let h = |_z: f64| DMatrix::from_row_slice(2, 2, &[c(d), c(k), c(k), c(-d)]);
+        let h = |_z: f64| two_guide_h(k, [d, -d]);
         let z = std::f64::consts::PI / (2.0 * (k * k + d * d).sqrt());
         let u = propagate(&h, 0.0, z, 1e-12, 2).unwrap().matrix;
         assert!((u[(1, 0)].norm_sqr() - k * k / (k * k + d * d)).abs() < 1e-12);
         // Undetuned: cos kz and -i sin kz.
-        let h0 = |_z: f64| DMatrix::from_row_slice(2, 2, &[c(0.0), c(k), c(k), c(0.0)]);
+        let h0 = |_z: f64| two_guide_h(k, [0.0; 2]);
         let u = propagate(&h0, 0.0, 30.0, 1e-13, 2).unwrap().matrix;
         assert!((u[(0, 0)] - c((k * 30.0).cos())).norm() < 1e-13);
         assert!((u[(1, 0)] - Complex64::new(0.0, -(k * 30.0).sin())).norm() < 1e-13);
@@ -285,7 +285,8 @@ mod tests {
             three_guide_h(0.6 * e, 0.8 * e, [0.0, 2e-3 * (z / 50.0).sin(), 0.0])
         };
         let exact = propagate_fixed(&h, 0.0, 200.0, 1 << 14);
-        let err = |n| max_abs(&(propagate_fixed(&h, 0.0, 200.0, n) - &exact));
+        let exact_d = DMatrix::from_fn(3, 3, |i, j| exact[(i, j)]);
+        let err = |n| max_entry(&(propagate_fixed(&h, 0.0, 200.0, n) - exact));
         let (e1, e2, e3) = (err(16), err(32), err(64));
         for r in [e1 / e2, e2 / e3] {
             assert!(
@@ -294,7 +295,7 @@ mod tests {
             );
         }
         let p = propagate(&h, 0.0, 200.0, 1e-9, 4).unwrap();
-        let true_err = max_abs(&(&p.matrix - &exact));
+        let true_err = max_abs(&(&p.matrix - &exact_d));
         assert!(
             true_err <= 2.0 * p.error_estimate + 1e-13,
             "{true_err:e} vs {:e}",

@@ -1,0 +1,42 @@
+//! The geometric cell: one integration of a designed pi/4 cell to 1e-9
+//! (fourth-order Magnus, `trilane::cell::integrate`), and one whole design:
+//! the analytic design on the exponential fit and its refinement on the
+//! smooth law with path detuning (`trilane::cell::refine`), on si220_wire.
+//! Run with `cargo bench --bench cell`.
+
+use std::hint::black_box;
+
+use criterion::{Criterion, criterion_group, criterion_main};
+use trilane::cell::geometric::LengthRule;
+use trilane::cell::refine::{self, CellContext};
+use trilane::process::eim::EffectiveIndex;
+use trilane::process::law::characterise;
+use trilane::process::presets::preset;
+
+fn bench(c: &mut Criterion) {
+    let p = preset("si220_wire").unwrap();
+    let ch = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+    let law = ch.law();
+    let beta = 2.0 * std::f64::consts::PI * ch.mode.as_ref().unwrap().neff / p.wavelength_um;
+    let ctx = CellContext {
+        law: &law.smooth,
+        fit: &law.fit,
+        min_gap_nm: p.rules.min_gap_nm,
+        beta_per_um: beta,
+        rule: LengthRule::Shortest,
+        residual: 1e-3,
+    };
+    let cell = refine::refine(std::f64::consts::FRAC_PI_4, &ctx).unwrap();
+    let mut g = c.benchmark_group("cell_geometric_pi_over_4");
+    g.sample_size(30);
+    g.bench_function("integrate_to_1e-9", |b| {
+        b.iter(|| black_box(refine::transfer(&ctx, &cell.design, 1e-9).unwrap()))
+    });
+    g.bench_function("design_and_refine", |b| {
+        b.iter(|| black_box(refine::refine(std::f64::consts::FRAC_PI_4, &ctx).unwrap()))
+    });
+    g.finish();
+}
+
+criterion_group!(benches, bench);
+criterion_main!(benches);
