@@ -14,8 +14,9 @@ use trilane::source::{self, Source, Span};
 /// fabrication-robust three-waveguide cells.
 ///
 /// This release has the front end (`check` validates circuit files, `fmt`
-/// formats them) and the linear-optical core (`simulate` computes what a
-/// chip's network does). The chip build follows.
+/// formats them), the linear-optical core (`simulate` computes what a chip's
+/// network does), the process model (`process`) and the first of the cell
+/// stage (`cell` designs one three-waveguide cell). The chip build follows.
 ///
 /// Exit codes: 0 success; 1 the input has errors; 2 usage error (bad
 /// options, unreadable file); 70 internal error (please report it).
@@ -25,7 +26,7 @@ use trilane::source::{self, Source, Span};
     version,
     about,
     long_about,
-    after_help = "Start with: trilane check circuits/bell_pair.trl\n            trilane simulate circuits/bell_pair.trl\nLanguage reference: docs/language.md"
+    after_help = "Start with: trilane check circuits/bell_pair.trl\n            trilane simulate circuits/bell_pair.trl\n            trilane process\n            trilane cell --theta 0.7854\nLanguage reference: docs/language.md; physics: docs/physics.md"
 )]
 struct Cli {
     #[command(subcommand)]
