@@ -127,9 +127,25 @@ fn residuals(theta: f64, u: &DMatrix<Complex64>) -> [f64; 2] {
     ]
 }
 
-/// Designs and refines one cell (module doc).
+/// Designs and refines one cell (module doc). When refinement pulls a gap
+/// below the process minimum, the analytic design starts again from a
+/// closer gap raised by the shortfall, so the refined cell keeps the rule.
 pub fn refine(theta: f64, ctx: &CellContext) -> Result<RefinedCell, CellError> {
-    let analytic = geometric::analytic(theta, ctx.fit, ctx.min_gap_nm, ctx.rule, ctx.residual)?;
+    let mut floor = ctx.min_gap_nm;
+    let mut cell = refine_from(theta, ctx, floor)?;
+    for _ in 0..4 {
+        let lowest = cell.design.gap_lower_nm.min(cell.design.gap_upper_nm);
+        if lowest >= ctx.min_gap_nm - 1e-6 {
+            break;
+        }
+        floor += ctx.min_gap_nm - lowest + 1e-3;
+        cell = refine_from(theta, ctx, floor)?;
+    }
+    Ok(cell)
+}
+
+fn refine_from(theta: f64, ctx: &CellContext, floor_nm: f64) -> Result<RefinedCell, CellError> {
+    let analytic = geometric::analytic(theta, ctx.fit, floor_nm, ctx.rule, ctx.residual)?;
     let u0 = transfer(ctx, &analytic, INTEGRATION_TOL)?;
     let analytic_quality = quality(theta, &u0);
     let mut d = analytic;
@@ -289,5 +305,33 @@ mod tests {
             "the detuning limit is physical: {:?}",
             cell.quality
         );
+    }
+
+    #[test]
+    fn refined_cells_keep_the_minimum_gap() {
+        // On the silica process the refinement pulls the closer gap in; the
+        // design must still respect the process's minimum gap.
+        let p = preset("silica_plc").unwrap();
+        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let law = c.law();
+        let beta = 2.0 * std::f64::consts::PI * c.mode.as_ref().unwrap().neff / p.wavelength_um;
+        let ctx = CellContext {
+            law: &law.smooth,
+            fit: &law.fit,
+            min_gap_nm: p.rules.min_gap_nm,
+            beta_per_um: beta,
+            rule: LengthRule::Shortest,
+            residual: 1e-3,
+        };
+        for theta in [0.5, 1.2] {
+            let cell = refine(theta, &ctx).unwrap();
+            let lowest = cell.design.gap_lower_nm.min(cell.design.gap_upper_nm);
+            assert!(lowest >= p.rules.min_gap_nm - 1e-6, "{:?}", cell.design);
+            assert!(
+                cell.quality.split_error < SPLIT_TARGET && cell.quality.leakage < LEAKAGE_TARGET,
+                "{:?}",
+                cell.quality
+            );
+        }
     }
 }
