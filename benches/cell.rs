@@ -16,16 +16,7 @@ use trilane::process::presets::preset;
 fn bench(c: &mut Criterion) {
     let p = preset("si220_wire").unwrap();
     let ch = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
-    let law = ch.law();
-    let beta = 2.0 * std::f64::consts::PI * ch.mode.as_ref().unwrap().neff / p.wavelength_um;
-    let ctx = CellContext {
-        law: &law.smooth,
-        fit: &law.fit,
-        min_gap_nm: p.rules.min_gap_nm,
-        beta_per_um: beta,
-        rule: LengthRule::Shortest,
-        residual: 1e-3,
-    };
+    let ctx = CellContext::of(&p, &ch, LengthRule::Shortest, 1e-3);
     let cell = refine::refine(std::f64::consts::FRAC_PI_4, &ctx).unwrap();
     let mut g = c.benchmark_group("cell_geometric_pi_over_4");
     g.sample_size(30);

@@ -561,7 +561,7 @@ fn simulate(
             return 2;
         }
     };
-    let result = match sim::simulate(&circuit, launch.as_deref(), output.as_deref()) {
+    let result = match sim::simulate_network(&circuit, net, launch.as_deref(), output.as_deref()) {
         Ok(r) => r,
         Err(e) => {
             eprintln!("error: chip {}: {e}", circuit.name);

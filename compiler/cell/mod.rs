@@ -50,24 +50,9 @@ pub fn design(
     let model = EffectiveIndex::TE_LIKE;
     let c = characterise(process, &model as &dyn WaveguideModel)?;
     let law = c.law();
-    let neff = c.mode.as_ref().map_or(
-        process
-            .film
-            .core
-            .index(process.wavelength_um)
-            .unwrap_or(2.0),
-        |m| m.neff,
-    );
     let cell = match kind {
         CellKind::Geometric => {
-            let ctx = refine::CellContext {
-                law: &law.smooth,
-                fit: &law.fit,
-                min_gap_nm: process.rules.min_gap_nm,
-                beta_per_um: 2.0 * std::f64::consts::PI * neff / process.wavelength_um,
-                rule,
-                residual: DEFAULT_RESIDUAL,
-            };
+            let ctx = refine::CellContext::of(process, &c, rule, DEFAULT_RESIDUAL);
             CellDesign::Geometric(refine::refine(theta, &ctx)?)
         }
         CellKind::Coupler => CellDesign::Coupler(coupler::design(

@@ -42,6 +42,39 @@ pub struct CellContext<'a> {
     pub residual: f64,
 }
 
+impl<'a> CellContext<'a> {
+    /// The context of a characterised process: its law at the design
+    /// wavelength, minimum gap, and the guides' propagation constant (from
+    /// the model's n_eff, or the core index when the law is a table without
+    /// mode figures).
+    pub fn of(
+        process: &crate::process::spec::Process,
+        c: &'a crate::process::law::Characterisation,
+        rule: LengthRule,
+        residual: f64,
+    ) -> CellContext<'a> {
+        let law = c.law();
+        let neff = c.mode.as_ref().map_or_else(
+            || {
+                process
+                    .film
+                    .core
+                    .index(process.wavelength_um)
+                    .unwrap_or(2.0)
+            },
+            |m| m.neff,
+        );
+        CellContext {
+            law: &law.smooth,
+            fit: &law.fit,
+            min_gap_nm: process.rules.min_gap_nm,
+            beta_per_um: 2.0 * std::f64::consts::PI * neff / process.wavelength_um,
+            rule,
+            residual,
+        }
+    }
+}
+
 /// How well a cell does what it should.
 #[derive(Clone, Debug, PartialEq)]
 pub struct CellQuality {
@@ -240,16 +273,7 @@ mod tests {
         // (0, pi/2]. Curve: si220_wire by the effective index method.
         let p = preset("si220_wire").unwrap();
         let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
-        let law = c.law();
-        let beta = 2.0 * std::f64::consts::PI * c.mode.as_ref().unwrap().neff / p.wavelength_um;
-        let ctx = CellContext {
-            law: &law.smooth,
-            fit: &law.fit,
-            min_gap_nm: p.rules.min_gap_nm,
-            beta_per_um: beta,
-            rule: LengthRule::Shortest,
-            residual: 1e-3,
-        };
+        let ctx = CellContext::of(&p, &c, LengthRule::Shortest, 1e-3);
         let mut worst_analytic: f64 = 0.0;
         for theta in [0.05, 0.3, std::f64::consts::FRAC_PI_4, 1.2, 1.45, 1.55] {
             let cell = refine(theta, &ctx).unwrap();
@@ -313,16 +337,7 @@ mod tests {
         // design must still respect the process's minimum gap.
         let p = preset("silica_plc").unwrap();
         let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
-        let law = c.law();
-        let beta = 2.0 * std::f64::consts::PI * c.mode.as_ref().unwrap().neff / p.wavelength_um;
-        let ctx = CellContext {
-            law: &law.smooth,
-            fit: &law.fit,
-            min_gap_nm: p.rules.min_gap_nm,
-            beta_per_um: beta,
-            rule: LengthRule::Shortest,
-            residual: 1e-3,
-        };
+        let ctx = CellContext::of(&p, &c, LengthRule::Shortest, 1e-3);
         for theta in [0.5, 1.2] {
             let cell = refine(theta, &ctx).unwrap();
             let lowest = cell.design.gap_lower_nm.min(cell.design.gap_upper_nm);

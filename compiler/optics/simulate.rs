@@ -133,7 +133,17 @@ pub fn simulate(
     launch: Option<&[u32]>,
     output: Option<&[u32]>,
 ) -> Result<Simulation, SimulateError> {
-    let net = network(circuit);
+    simulate_network(circuit, network(circuit), launch, output)
+}
+
+/// [`simulate`] on the circuit's network built already (the command line
+/// builds it first to read `--launch` and `--output` against its modes).
+pub fn simulate_network(
+    circuit: &Circuit,
+    net: ModeNetwork,
+    launch: Option<&[u32]>,
+    output: Option<&[u32]>,
+) -> Result<Simulation, SimulateError> {
     let launch = launch.map_or_else(|| net.launch_occupation(), <[u32]>::to_vec);
     let logical = if output.is_some() {
         Err("not computed when one output pattern is asked for".to_owned())
