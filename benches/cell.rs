@@ -1,5 +1,6 @@
 //! The geometric cell: one integration of a designed pi/4 cell to 1e-9
-//! (fourth-order Magnus, `trilane::cell::integrate`), and one whole design:
+//! (sixth-order Magnus between the law's knots, `trilane::cell::integrate`),
+//! probing its step count or from a trusted one, and one whole design:
 //! the analytic design on the exponential fit and its refinement on the
 //! smooth law with path detuning (`trilane::cell::refine`), on si220_wire.
 //! Run with `cargo bench --bench cell`.
@@ -22,6 +23,14 @@ fn bench(c: &mut Criterion) {
     g.sample_size(30);
     g.bench_function("integrate_to_1e-9", |b| {
         b.iter(|| black_box(refine::transfer(&ctx, &cell.design, 1e-9).unwrap()))
+    });
+    let probe = refine::integrate_design(&ctx, &cell.design, 1e-9, None).unwrap();
+    g.bench_function("integrate_to_1e-9_trusted_start", |b| {
+        b.iter(|| {
+            black_box(
+                refine::integrate_design(&ctx, &cell.design, 1e-9, Some(probe.steps / 2)).unwrap(),
+            )
+        })
     });
     g.bench_function("design_and_refine", |b| {
         b.iter(|| black_box(refine::refine(std::f64::consts::FRAC_PI_4, &ctx).unwrap()))

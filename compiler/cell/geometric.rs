@@ -56,6 +56,22 @@ impl GeometricDesign {
         self.bend_nm_per_um2 * 1e3
     }
 
+    /// Where either rail's gap crosses one of `knots_nm` (the law's
+    /// knots), in z (um): the breaks of H for the integrator.
+    pub fn knot_crossings_um(&self, knots_nm: &[f64]) -> Vec<f64> {
+        let mut z = Vec::new();
+        for g_min in [self.gap_upper_nm, self.gap_lower_nm] {
+            for &k in knots_nm {
+                if k > g_min && self.bend_nm_per_um2 > 0.0 {
+                    let x = ((k - g_min) / self.bend_nm_per_um2).sqrt();
+                    z.push(self.length_um / 2.0 - x);
+                    z.push(self.length_um / 2.0 + x);
+                }
+            }
+        }
+        z
+    }
+
     /// The two gaps at z (nm).
     pub fn gaps_nm(&self, z_um: f64) -> (f64, f64) {
         let x = z_um - self.length_um / 2.0;

@@ -112,13 +112,47 @@ pub fn transfer(
     d: &GeometricDesign,
     tol: f64,
 ) -> Result<DMatrix<Complex64>, CellError> {
+    Ok(integrate_design(ctx, d, tol, None)?.matrix)
+}
+
+/// As [`transfer`], with the integration's figures, from a trusted step
+/// count when one is known.
+pub fn integrate_design(
+    ctx: &CellContext,
+    d: &GeometricDesign,
+    tol: f64,
+    trusted_steps: Option<usize>,
+) -> Result<super::integrate::Propagator, CellError> {
     let h = |z: f64| {
         let (gu, gl) = d.gaps_nm(z);
         let slope = 2.0 * d.bend_nm_per_um2 * (z - d.length_um / 2.0);
         let dr = path_detuning(ctx.beta_per_um, slope);
         super::integrate::three_guide_h(ctx.law.k_per_um(gu), ctx.law.k_per_um(gl), [dr, 0.0, dr])
     };
-    Ok(super::integrate::propagate(&h, 0.0, d.length_um, tol, 32)?.matrix)
+    integrate_cell(&h, ctx.law.knots_nm(), d, tol, trusted_steps)
+}
+
+/// The integration of a geometric cell's H: sixth-order Magnus with the
+/// law's knots as breaks, from a trusted step count when one is known.
+pub fn integrate_cell(
+    h: &dyn Fn(f64) -> nalgebra::Matrix3<Complex64>,
+    knots_nm: &[f64],
+    d: &GeometricDesign,
+    tol: f64,
+    trusted_steps: Option<usize>,
+) -> Result<super::integrate::Propagator, CellError> {
+    use super::integrate::{Method, Start, propagate_piecewise};
+    let breaks = d.knot_crossings_um(knots_nm);
+    let start = trusted_steps.map_or(Start::Probe(16), Start::Trusted);
+    Ok(propagate_piecewise(
+        Method::Magnus6,
+        h,
+        0.0,
+        d.length_um,
+        &breaks,
+        tol,
+        start,
+    )?)
 }
 
 pub fn quality(theta: f64, u: &DMatrix<Complex64>) -> CellQuality {
@@ -179,51 +213,90 @@ pub fn refine(theta: f64, ctx: &CellContext) -> Result<RefinedCell, CellError> {
 
 fn refine_from(theta: f64, ctx: &CellContext, floor_nm: f64) -> Result<RefinedCell, CellError> {
     let analytic = geometric::analytic(theta, ctx.fit, floor_nm, ctx.rule, ctx.residual)?;
-    let u0 = transfer(ctx, &analytic, INTEGRATION_TOL)?;
+    // The first integration probes the step count; the nearby designs of
+    // the iteration start from it (`Start::Trusted`).
+    let first = integrate_design(ctx, &analytic, INTEGRATION_TOL, None)?;
+    let steps = Some(first.steps / 2);
+    let u0 = first.matrix;
     let analytic_quality = quality(theta, &u0);
     let mut d = analytic;
     let mut u = u0;
     let mut iterations = 0;
-    let h = 0.01; // nm, the finite-difference step of the Jacobian
     let size = |f: [f64; 2]| f[0].abs().max(f[1].abs());
-    let mut best = (size(residuals(theta, &u)), d, u.clone());
+    let mut f = residuals(theta, &u);
+    let mut best = (size(f), d, u.clone());
+    // The Jacobian by forward differences (step 0.02 nm) at the start, then
+    // Broyden's rank-one updates (Broyden, Math. Comp. 19, 577, 1965),
+    // recomputed when a step fails to reduce the residual.
+    let jacobian = |d: &GeometricDesign, f: [f64; 2]| -> Result<[[f64; 2]; 2], CellError> {
+        let h = 0.02;
+        let column = |upper: bool| -> Result<[f64; 2], CellError> {
+            let mut dd = *d;
+            if upper {
+                dd.gap_upper_nm += h;
+            } else {
+                dd.gap_lower_nm += h;
+            }
+            let u = integrate_design(ctx, &dd, INTEGRATION_TOL, steps)?.matrix;
+            let fk = residuals(theta, &u);
+            Ok([(fk[0] - f[0]) / h, (fk[1] - f[1]) / h])
+        };
+        let (cu, cl) = (column(true)?, column(false)?);
+        Ok([[cu[0], cl[0]], [cu[1], cl[1]]])
+    };
+    let mut jac = jacobian(&d, f)?;
+    let mut fresh = true;
     let mut stalled = 0;
-    while iterations < 30 && stalled < 3 {
+    while iterations < 40 && stalled < 4 {
         let q = quality(theta, &u);
         if q.split_error < SPLIT_TARGET / 4.0 && q.leakage < LEAKAGE_TARGET / 4.0 {
             break;
         }
         iterations += 1;
-        let f = residuals(theta, &u);
-        if size(f) < best.0 {
-            best = (size(f), d, u.clone());
-            stalled = 0;
-        } else {
-            stalled += 1;
-        }
-        let mut jac = [[0.0; 2]; 2];
-        for (k, col) in [0usize, 1].iter().enumerate() {
-            let mut dd = d;
-            if *col == 0 {
-                dd.gap_upper_nm += h;
-            } else {
-                dd.gap_lower_nm += h;
-            }
-            let fk = residuals(theta, &transfer(ctx, &dd, INTEGRATION_TOL)?);
-            jac[0][k] = (fk[0] - f[0]) / h;
-            jac[1][k] = (fk[1] - f[1]) / h;
-        }
         let det = jac[0][0] * jac[1][1] - jac[0][1] * jac[1][0];
         if det.abs() < 1e-300 {
             break;
         }
-        let du = -(jac[1][1] * f[0] - jac[0][1] * f[1]) / det;
-        let dl = -(-jac[1][0] * f[0] + jac[0][0] * f[1]) / det;
+        let mut du = -(jac[1][1] * f[0] - jac[0][1] * f[1]) / det;
+        let mut dl = -(-jac[1][0] * f[0] + jac[0][0] * f[1]) / det;
         // Damp large steps: the residuals are nearly linear over a few nm.
         let scale = (5.0 / du.abs().max(dl.abs())).min(1.0);
-        d.gap_upper_nm += scale * du;
-        d.gap_lower_nm += scale * dl;
-        u = transfer(ctx, &d, INTEGRATION_TOL)?;
+        du *= scale;
+        dl *= scale;
+        let mut next = d;
+        next.gap_upper_nm += du;
+        next.gap_lower_nm += dl;
+        let u_next = integrate_design(ctx, &next, INTEGRATION_TOL, steps)?.matrix;
+        let f_next = residuals(theta, &u_next);
+        if size(f_next) < best.0 {
+            best = (size(f_next), next, u_next.clone());
+            stalled = 0;
+        } else {
+            stalled += 1;
+        }
+        if size(f_next) >= size(f) && !fresh {
+            // Broyden's secant model has gone stale: differentiate again
+            // at the current point and retry from it.
+            jac = jacobian(&d, f)?;
+            fresh = true;
+            continue;
+        }
+        // Broyden: J += (df - J dx) dx^T / (dx^T dx)
+        let dx = [du, dl];
+        let df = [f_next[0] - f[0], f_next[1] - f[1]];
+        let dd = du * du + dl * dl;
+        if dd > 0.0 {
+            for (r, row) in jac.iter_mut().enumerate() {
+                let jdx = row[0] * dx[0] + row[1] * dx[1];
+                for (c, v) in row.iter_mut().enumerate() {
+                    *v += (df[r] - jdx) * dx[c] / dd;
+                }
+            }
+        }
+        fresh = false;
+        d = next;
+        u = u_next;
+        f = f_next;
     }
     // Where no root exists (theta = pi/2 under path detuning) keep the best.
     if size(residuals(theta, &u)) > best.0 {

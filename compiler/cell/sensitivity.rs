@@ -104,8 +104,7 @@ pub fn respond(
                     [dr + du, dm, dr + dl],
                 )
             };
-            let u = super::integrate::propagate(&h, 0.0, d.length_um, refine::INTEGRATION_TOL, 32)
-                .map_err(CellError::from)?
+            let u = refine::integrate_cell(&h, law.knots_nm(), &d, refine::INTEGRATION_TOL, None)?
                 .matrix;
             let leak = u[(1, 0)].norm_sqr().max(u[(1, 2)].norm_sqr());
             (super::geometric::rail_block(&u), leak)

@@ -136,7 +136,29 @@ impl SmoothLaw {
     }
 
     pub fn k_per_um(&self, gap_nm: f64) -> f64 {
-        self.ln_k(gap_nm).0.exp()
+        let n = self.g.len();
+        if gap_nm <= self.g[0] || gap_nm >= self.g[n - 1] {
+            return self.ln_k(gap_nm).0.exp();
+        }
+        // The spline value alone (as in `ln_k`): the hot path of the cells.
+        let i = match self.g.binary_search_by(|x| x.total_cmp(&gap_nm)) {
+            Ok(i) => i.min(n - 2),
+            Err(i) => i - 1,
+        };
+        let h = self.g[i + 1] - self.g[i];
+        let a = (self.g[i + 1] - gap_nm) / h;
+        let b = 1.0 - a;
+        let v = a * self.y[i]
+            + b * self.y[i + 1]
+            + ((a * a * a - a) * self.m[i] + (b * b * b - b) * self.m[i + 1]) * h * h / 6.0;
+        v.exp()
+    }
+
+    /// The knots: between them (and beyond the ends) ln k is a polynomial
+    /// in g; at them its third derivative jumps, which an integrator should
+    /// not step across.
+    pub fn knots_nm(&self) -> &[f64] {
+        &self.g
     }
 
     /// The local decay length `-1 / (d ln k / dg)`, nm.
