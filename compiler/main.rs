@@ -123,7 +123,8 @@ enum Command {
     /// exponential fit, then refined on its smooth coupling law with the
     /// rails' path detuning until the split and the leakage into the
     /// auxiliary guide are within 1e-6. `coupler` is the directional-coupler
-    /// baseline of the same split.
+    /// baseline of the same split, `mzi` two 50:50 couplers around a
+    /// thermal phase shifter.
     Cell {
         /// The rotation angle theta in (0, pi/2], radians (cross power sin^2 theta)
         #[arg(
@@ -147,6 +148,21 @@ enum Command {
         /// length a mesh shares
         #[arg(long = "cell-length", value_enum, default_value = "shortest")]
         length: LengthArg,
+        /// Guide width(s) in nm: the cell is designed for the first; with
+        /// several (`--width 500,600,700`) a width trade table compares
+        /// lengths and Monte Carlo fidelity for each
+        #[arg(long, value_name = "NM", value_delimiter = ',')]
+        width: Vec<f64>,
+        /// Write a figure: cross power and auxiliary leakage against the gap
+        /// difference, and 1-F against edge bias for both cells
+        #[arg(long, value_name = "FILE.svg")]
+        sweep: Option<PathBuf>,
+        /// Monte Carlo samples per cell (0 switches it off)
+        #[arg(long, value_name = "N", default_value_t = 32)]
+        samples: usize,
+        /// Monte Carlo seed
+        #[arg(long, value_name = "S", default_value_t = 1)]
+        seed: u64,
         /// Print one JSON document on stdout instead of the summary
         #[arg(long)]
         json: bool,
@@ -157,6 +173,7 @@ enum Command {
 enum CellKindArg {
     Geometric,
     Coupler,
+    Mzi,
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -206,8 +223,23 @@ fn main() -> ExitCode {
                 process,
                 kind,
                 length,
+                width,
+                sweep,
+                samples,
+                seed,
                 json,
-            } => cell(theta, split, &process, kind, length, json),
+            } => cell(CellArgs {
+                theta,
+                split,
+                process,
+                kind,
+                length,
+                width,
+                sweep,
+                samples,
+                seed,
+                json,
+            }),
         });
     let code = match work.map(|h| h.join()) {
         Ok(Ok(code)) => code,
@@ -701,16 +733,22 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
     0
 }
 
-fn cell(
+struct CellArgs {
     theta: Option<f64>,
     split: Option<f64>,
-    process: &str,
+    process: String,
     kind: CellKindArg,
     length: LengthArg,
+    width: Vec<f64>,
+    sweep: Option<PathBuf>,
+    samples: usize,
+    seed: u64,
     json: bool,
-) -> u8 {
-    use trilane::cell::{CellKind, geometric::LengthRule};
-    let theta = match (theta, split) {
+}
+
+fn cell(a: CellArgs) -> u8 {
+    use trilane::cell::{CellDesign, CellKind, geometric::LengthRule};
+    let theta = match (a.theta, a.split) {
         (Some(t), _) => t,
         (None, Some(c)) if (0.0..=1.0).contains(&c) && c > 0.0 => c.sqrt().asin(),
         (None, Some(c)) => {
@@ -725,15 +763,39 @@ fn cell(
         );
         return 2;
     }
-    let p = match load_process(process) {
+    let mut p = match load_process(&a.process) {
         Ok(p) => p,
         Err(code) => return code,
     };
-    let kind = match kind {
+    if let Some(w) = a.width.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
+        eprintln!("error: --width takes guide widths in nm, each above 0, got {w}");
+        return 2;
+    }
+    if let Some(w) = a.width.iter().find(|w| **w < p.rules.min_width_nm) {
+        eprintln!(
+            "error: --width {w} nm is below {}'s minimum feature width of {} nm",
+            p.name, p.rules.min_width_nm
+        );
+        return 2;
+    }
+    if let Some(path) = &a.sweep
+        && path.extension().and_then(|e| e.to_str()) != Some("svg")
+    {
+        eprintln!(
+            "error: --sweep writes an SVG figure: give a file name ending in .svg, got {}",
+            path.display()
+        );
+        return 2;
+    }
+    if let Some(&w) = a.width.first() {
+        p.width_nm = w;
+    }
+    let kind = match a.kind {
         CellKindArg::Geometric => CellKind::Geometric,
         CellKindArg::Coupler => CellKind::Coupler,
+        CellKindArg::Mzi => CellKind::Mzi,
     };
-    let rule = match length {
+    let rule = match a.length {
         LengthArg::Uniform => LengthRule::Uniform,
         LengthArg::Shortest => LengthRule::Shortest,
     };
@@ -747,7 +809,7 @@ fn cell(
     // The other kind of the same split, side by side.
     let other = match kind {
         CellKind::Geometric => CellKind::Coupler,
-        CellKind::Coupler => CellKind::Geometric,
+        CellKind::Coupler | CellKind::Mzi => CellKind::Geometric,
     };
     let comparison = match trilane::cell::design(other, theta, &p, rule) {
         Ok((d, _)) => d,
@@ -763,11 +825,111 @@ fn cell(
             return 1;
         }
     };
-    let text = if json {
-        trilane::report::cell::to_json(&design, &p, &c, &rows, &comparison)
+    let mc = |d: &CellDesign| trilane::cell::sensitivity::monte_carlo(d, &p, a.samples, a.seed);
+    let monte_carlo = if a.samples > 0 {
+        match (mc(&design), mc(&comparison)) {
+            (Ok(x), Ok(y)) => Some((x, y)),
+            (Err(e), _) | (_, Err(e)) => {
+                eprintln!("error: Monte Carlo: {e}");
+                return 1;
+            }
+        }
     } else {
-        trilane::report::cell::to_text(&design, &p, &c, &rows, &comparison)
+        None
+    };
+    let widths = if a.width.len() > 1 {
+        match trilane::cell::sensitivity::width_trade(
+            kind,
+            other,
+            theta,
+            &p,
+            rule,
+            &a.width,
+            a.samples.max(8),
+            a.seed,
+        ) {
+            Ok(w) => w,
+            Err(e) => {
+                eprintln!("error: width trade: {e}");
+                return 1;
+            }
+        }
+    } else {
+        Vec::new()
+    };
+    let mut sweep_file = None;
+    if let Some(path) = &a.sweep {
+        let svg = match sweep(&design, &comparison, &p, &c, rule) {
+            Ok(s) => s,
+            Err(e) => {
+                eprintln!("error: the sweep: {e}");
+                return 1;
+            }
+        };
+        if let Err(e) = write_atomically(path, svg.as_bytes()) {
+            eprintln!("error: cannot write {}: {e}", path.display());
+            return 1;
+        }
+        sweep_file = Some(path.display().to_string());
+    }
+    let report = trilane::report::cell::CellReport {
+        cell: &design,
+        comparison: &comparison,
+        process: &p,
+        characterisation: &c,
+        sensitivity: &rows,
+        monte_carlo,
+        widths: &widths,
+        sweep_file,
+    };
+    let text = if a.json {
+        trilane::report::cell::to_json(&report)
+    } else {
+        trilane::report::cell::to_text(&report)
     };
     let _ = std::io::stdout().lock().write_all(text.as_bytes());
     0
+}
+
+/// The `--sweep` figure: the gap sweep of the geometric cell (the design,
+/// or the comparison when the design is a baseline) and the bias sweep of
+/// both cells.
+fn sweep(
+    design: &trilane::cell::CellDesign,
+    comparison: &trilane::cell::CellDesign,
+    p: &trilane::process::spec::Process,
+    c: &trilane::process::law::Characterisation,
+    rule: trilane::cell::geometric::LengthRule,
+) -> Result<String, String> {
+    use trilane::cell::{CellDesign, refine::CellContext, sweep};
+    let geometric = match (design, comparison) {
+        (CellDesign::Geometric(r), _) | (_, CellDesign::Geometric(r)) => r,
+        _ => return Err("no geometric cell to sweep".to_owned()),
+    };
+    let ctx = CellContext::of(p, c, rule, geometric.design.residual);
+    let gaps = sweep::gap_sweep(&geometric.design, &ctx, 41).map_err(|e| e.to_string())?;
+    let max_bias = (3.0 * p.tolerances.edge_bias_nm).max(1.0);
+    let mut bias = Vec::new();
+    for d in [design, comparison] {
+        let name = match d {
+            CellDesign::Geometric(_) => "geometric",
+            CellDesign::Coupler(_) => "coupler",
+            CellDesign::Mzi(_) => "mzi",
+        };
+        bias.push((
+            name,
+            sweep::bias_sweep(d, p, max_bias, 13).map_err(|e| e.to_string())?,
+        ));
+    }
+    let r = &geometric.rail_block;
+    let s = sweep::Sweep {
+        theta: geometric.design.theta,
+        design_gap_difference_nm: geometric.design.gap_upper_nm - geometric.design.gap_lower_nm,
+        design_cross: r[(1, 0)].norm_sqr(),
+        design_leakage: geometric.quality.leakage,
+        g_c_nm: ctx.fit.g_c_nm,
+        gaps,
+        bias,
+    };
+    trilane::report::cell_sweep::sweep_svg(&s, &p.name)
 }

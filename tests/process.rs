@@ -228,3 +228,120 @@ fn a_cell_is_designed_and_refined() {
     let out = trilane().args(["cell", "--theta", "2"]).output().unwrap();
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn the_cell_sweep_figure_and_the_baselines() {
+    // `trilane cell --theta 0.7854 --sweep s.svg`: one SVG with the three
+    // panels; the Monte Carlo and the first-order columns in the JSON; the
+    // MZI baseline; and the width trade with longer cells for wider guides
+    // (weaker evanescent coupling: Marcuse 1991, ch. 3).
+    let dir = tempfile::tempdir().unwrap();
+    let svg = dir.path().join("s.svg");
+    let out = trilane()
+        .args(["cell", "--theta", "0.7854", "--samples", "8", "--sweep"])
+        .arg(&svg)
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let d: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let text = std::fs::read_to_string(&svg).unwrap();
+    assert!(text.starts_with("<svg") && text.trim_end().ends_with("</svg>"));
+    for caption in [
+        "cross power vs gap difference",
+        "power left in the auxiliary guide",
+        "1 - F against edge bias",
+    ] {
+        assert!(text.contains(caption), "{caption}");
+    }
+    assert_eq!(d["sweep_file"], svg.display().to_string());
+    assert_eq!(d["monte_carlo"]["samples"], 8);
+    let mc = &d["monte_carlo"];
+    assert!(mc["infidelity_p95"].as_f64().unwrap() >= mc["infidelity_median"].as_f64().unwrap());
+    assert!(
+        mc["calibrated_infidelity_mean"].as_f64().unwrap()
+            <= mc["infidelity_mean"].as_f64().unwrap()
+    );
+    let rows = d["sensitivity"].as_array().unwrap();
+    assert!(
+        rows.iter()
+            .any(|r| r["source"] == "roughness" && r["first_order"].is_null())
+    );
+    let edge = rows.iter().find(|r| r["source"] == "edge_bias").unwrap();
+    let (exact, lin) = (
+        edge["cell"]["split_error"].as_f64().unwrap(),
+        edge["first_order"]["split_error"].as_f64().unwrap(),
+    );
+    assert!((exact - lin).abs() < 0.2 * exact.abs(), "{exact} {lin}");
+
+    // MZI: two 50:50 couplers and the textbook phase pi - 2 theta.
+    let out = trilane()
+        .args([
+            "cell",
+            "--theta",
+            "0.5",
+            "--cell",
+            "mzi",
+            "--samples",
+            "0",
+            "--json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let m: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(m["kind"], "mzi");
+    assert_eq!(m["comparison_kind"], "geometric");
+    assert!((m["phase_rad"].as_f64().unwrap() - (std::f64::consts::PI - 1.0)).abs() < 1e-3);
+    assert!(m.get("monte_carlo").is_none());
+
+    // The width trade.
+    let out = trilane()
+        .args([
+            "cell",
+            "--theta",
+            "0.7854",
+            "--width",
+            "500,650",
+            "--samples",
+            "8",
+            "--json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let w: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let rows = w["width_trade"].as_array().unwrap();
+    assert_eq!(rows.len(), 2);
+    assert!(rows[1]["length_um"].as_f64().unwrap() > rows[0]["length_um"].as_f64().unwrap());
+    assert_eq!(w["width_nm"], 500.0);
+
+    // Usage errors, and no figure written.
+    let bad = dir.path().join("s.png");
+    let out = trilane()
+        .args(["cell", "--theta", "0.7854", "--sweep"])
+        .arg(&bad)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains(".svg"));
+    assert!(!bad.exists());
+    let out = trilane()
+        .args(["cell", "--theta", "0.7854", "--width", "20"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("minimum feature width"));
+}

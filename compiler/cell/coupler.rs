@@ -45,7 +45,23 @@ pub fn transfer_detuned(
     reach: f64,
     d: [f64; 2],
 ) -> Result<DMatrix<Complex64>, CellError> {
-    transfer(law, gap, straight, radius_um, reach, TOL, d)
+    transfer(law, gap, straight, radius_um, reach, TOL, &|_| (0.0, d))
+}
+
+/// Along-z errors of a coupler: at z (um from its start), the gap change
+/// (nm) and the detunings of its two guides (rad/um).
+pub type AlongZ<'a> = &'a (dyn Fn(f64) -> (f64, [f64; 2]) + Sync);
+
+/// The coupler's transfer with along-z errors (sensitivity, roughness).
+pub fn transfer_along(
+    law: &SmoothLaw,
+    gap: f64,
+    straight: f64,
+    radius_um: f64,
+    reach: f64,
+    errors: AlongZ,
+) -> Result<DMatrix<Complex64>, CellError> {
+    transfer(law, gap, straight, radius_um, reach, TOL, errors)
 }
 
 const TOL: f64 = 1e-11;
@@ -57,7 +73,7 @@ fn transfer(
     radius_um: f64,
     reach: f64,
     tol: f64,
-    d: [f64; 2],
+    errors: AlongZ,
 ) -> Result<DMatrix<Complex64>, CellError> {
     let total = straight + 2.0 * reach;
     let h = |z: f64| {
@@ -68,20 +84,31 @@ fn transfer(
         } else {
             0.0
         };
+        let (dg, d) = errors(z);
         // x^2 / R in um -> nm
-        let g = gap + x * x / radius_um * 1e3;
+        let g = gap + dg + x * x / radius_um * 1e3;
         integrate::two_guide_h(law.k_per_um(g), d)
     };
-    // The straight-to-bend joins have a jump in dk/dz: integrate piecewise.
-    let mut u = DMatrix::identity(2, 2);
-    let mut z0 = 0.0;
-    for z1 in [reach, reach + straight, total] {
-        if z1 > z0 + 1e-12 {
-            u = integrate::propagate(&h, z0, z1, tol, 8)?.matrix * u;
+    // The straight-to-bend joins have a jump in dk/dz, and the law's knots
+    // one in its third derivative: no step straddles either.
+    let mut breaks = vec![reach, reach + straight];
+    for &k in law.knots_nm() {
+        if k > gap {
+            let x = ((k - gap) * radius_um * 1e-3).sqrt();
+            breaks.push(reach - x);
+            breaks.push(reach + straight + x);
         }
-        z0 = z1;
     }
-    Ok(u)
+    Ok(integrate::propagate_piecewise(
+        integrate::Method::Magnus6,
+        &h,
+        0.0,
+        total,
+        &breaks,
+        tol,
+        integrate::Start::Probe(8),
+    )?
+    .matrix)
 }
 
 /// Designs the coupler of split theta.
@@ -103,7 +130,9 @@ pub fn design(
     let tol = TOL;
     // Newton on the straight length: d(area)/d(straight) = k0.
     let mut straight = analytic;
-    let mut u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol, [0.0; 2])?;
+    let mut u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol, &|_| {
+        (0.0, [0.0; 2])
+    })?;
     for _ in 0..20 {
         let cross = u[(1, 0)].norm().atan2(u[(0, 0)].norm());
         let miss = theta - cross;
@@ -111,7 +140,9 @@ pub fn design(
             break;
         }
         straight = (straight + miss / k0).max(0.0);
-        u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol, [0.0; 2])?;
+        u = transfer(law, gap_nm, straight, bend_radius_um, reach, tol, &|_| {
+            (0.0, [0.0; 2])
+        })?;
         if straight == 0.0 {
             break;
         }

@@ -1,14 +1,19 @@
-//! The cells that realise two-mode rotations. So far: the coupled-mode
-//! integrator (integrate.rs), the geometric cell's analytic design
-//! (geometric.rs) and its refinement against the process's real coupling
-//! curve with path detuning (refine.rs). The coupler and MZI baselines, the
-//! sensitivity analysis and `trilane cell` follow.
+//! The cells that realise two-mode rotations: the coupled-mode integrator
+//! (integrate.rs), the geometric cell's analytic design (geometric.rs) and
+//! its refinement against the process's real coupling curve with path
+//! detuning (refine.rs), the directional-coupler and MZI baselines
+//! (coupler.rs, mzi.rs), and their sensitivity to fabrication errors
+//! (sensitivity.rs, roughness.rs).
 
+pub mod cache;
 pub mod coupler;
 pub mod geometric;
 pub mod integrate;
+pub mod mzi;
 pub mod refine;
+pub mod roughness;
 pub mod sensitivity;
+pub mod sweep;
 
 use crate::process::eim::{EffectiveIndex, WaveguideModel};
 use crate::process::law::{Characterisation, ProcessError, characterise};
@@ -19,6 +24,7 @@ use crate::process::spec::Process;
 pub enum CellKind {
     Geometric,
     Coupler,
+    Mzi,
 }
 
 /// One designed cell with the process it was designed on.
@@ -26,6 +32,34 @@ pub enum CellKind {
 pub enum CellDesign {
     Geometric(refine::RefinedCell),
     Coupler(coupler::CouplerDesign),
+    Mzi(mzi::MziDesign),
+}
+
+impl CellDesign {
+    pub fn kind(&self) -> CellKind {
+        match self {
+            CellDesign::Geometric(_) => CellKind::Geometric,
+            CellDesign::Coupler(_) => CellKind::Coupler,
+            CellDesign::Mzi(_) => CellKind::Mzi,
+        }
+    }
+
+    pub fn length_um(&self) -> f64 {
+        match self {
+            CellDesign::Geometric(r) => r.design.length_um,
+            CellDesign::Coupler(k) => k.length_um,
+            CellDesign::Mzi(m) => m.length_um,
+        }
+    }
+
+    /// The 2 x 2 block on the rails.
+    pub fn rail_block(&self) -> nalgebra::DMatrix<num_complex::Complex64> {
+        match self {
+            CellDesign::Geometric(r) => r.rail_block.clone(),
+            CellDesign::Coupler(k) => k.transfer.clone(),
+            CellDesign::Mzi(m) => m.transfer.clone(),
+        }
+    }
 }
 
 #[derive(Debug, thiserror::Error)]
@@ -34,6 +68,14 @@ pub enum DesignError {
     Process(#[from] ProcessError),
     #[error(transparent)]
     Cell(#[from] geometric::CellError),
+    #[error(transparent)]
+    Sensitivity(#[from] Box<sensitivity::SensitivityError>),
+}
+
+impl From<sensitivity::SensitivityError> for DesignError {
+    fn from(e: sensitivity::SensitivityError) -> Self {
+        DesignError::Sensitivity(Box::new(e))
+    }
 }
 
 /// The residual coupling at a geometric cell's ends, relative to its peak.
@@ -61,6 +103,14 @@ pub fn design(
             &law.fit,
             process.rules.min_gap_nm,
             process.rules.min_bend_radius_um,
+        )?),
+        CellKind::Mzi => CellDesign::Mzi(mzi::design(
+            theta,
+            &law.smooth,
+            &law.fit,
+            process.rules.min_gap_nm,
+            process.rules.min_bend_radius_um,
+            process.thermal.length_um,
         )?),
     };
     Ok((cell, c))

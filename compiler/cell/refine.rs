@@ -87,7 +87,9 @@ pub struct CellQuality {
 #[derive(Clone, Debug, PartialEq)]
 pub struct RefinedCell {
     pub analytic: GeometricDesign,
-    pub analytic_quality: CellQuality,
+    /// None when the cell was polished from a cache (its analytic design
+    /// was not integrated).
+    pub analytic_quality: Option<CellQuality>,
     pub design: GeometricDesign,
     pub quality: CellQuality,
     /// 3 x 3, order (upper rail, auxiliary, lower rail).
@@ -98,6 +100,10 @@ pub struct RefinedCell {
     pub out_phases_rad: [f64; 2],
     pub in_phase_lower_rad: f64,
     pub iterations: usize,
+    /// The last Jacobian of the residuals in the two gaps (per nm), and half
+    /// the accepted integration's step count: what a polish starts from.
+    pub jacobian: [[f64; 2]; 2],
+    pub half_steps: usize,
 }
 
 /// The path detuning of a rail at slope `dg/dz` (nm/um).
@@ -216,11 +222,48 @@ fn refine_from(theta: f64, ctx: &CellContext, floor_nm: f64) -> Result<RefinedCe
     // The first integration probes the step count; the nearby designs of
     // the iteration start from it (`Start::Trusted`).
     let first = integrate_design(ctx, &analytic, INTEGRATION_TOL, None)?;
-    let steps = Some(first.steps / 2);
-    let u0 = first.matrix;
-    let analytic_quality = quality(theta, &u0);
-    let mut d = analytic;
-    let mut u = u0;
+    let analytic_quality = quality(theta, &first.matrix);
+    solve(
+        theta,
+        ctx,
+        analytic,
+        Some(analytic_quality),
+        analytic,
+        first.matrix,
+        first.steps / 2,
+        None,
+    )
+}
+
+/// Polishes a design started near the solution (a cache's interpolation):
+/// the analytic design of `theta` for the record, the iteration from
+/// `start` with a known Jacobian and step count.
+pub fn polish(
+    theta: f64,
+    ctx: &CellContext,
+    start: GeometricDesign,
+    jacobian: [[f64; 2]; 2],
+    steps: usize,
+) -> Result<RefinedCell, CellError> {
+    let analytic = geometric::analytic(theta, ctx.fit, ctx.min_gap_nm, ctx.rule, ctx.residual)?;
+    let u = integrate_design(ctx, &start, INTEGRATION_TOL, Some(steps))?.matrix;
+    solve(theta, ctx, analytic, None, start, u, steps, Some(jacobian))
+}
+
+#[allow(clippy::too_many_arguments)]
+fn solve(
+    theta: f64,
+    ctx: &CellContext,
+    analytic: GeometricDesign,
+    analytic_quality: Option<CellQuality>,
+    start: GeometricDesign,
+    u_start: DMatrix<Complex64>,
+    half_steps: usize,
+    jac0: Option<[[f64; 2]; 2]>,
+) -> Result<RefinedCell, CellError> {
+    let steps = Some(half_steps);
+    let mut d = start;
+    let mut u = u_start;
     let mut iterations = 0;
     let size = |f: [f64; 2]| f[0].abs().max(f[1].abs());
     let mut f = residuals(theta, &u);
@@ -244,12 +287,17 @@ fn refine_from(theta: f64, ctx: &CellContext, floor_nm: f64) -> Result<RefinedCe
         let (cu, cl) = (column(true)?, column(false)?);
         Ok([[cu[0], cl[0]], [cu[1], cl[1]]])
     };
-    let mut jac = jacobian(&d, f)?;
-    let mut fresh = true;
+    let q0 = quality(theta, &u);
+    let done =
+        |q: &CellQuality| q.split_error < SPLIT_TARGET / 4.0 && q.leakage < LEAKAGE_TARGET / 4.0;
+    let (mut jac, mut fresh) = match jac0 {
+        Some(j) => (j, false),
+        None if done(&q0) => ([[0.0; 2]; 2], false),
+        None => (jacobian(&d, f)?, true),
+    };
     let mut stalled = 0;
     while iterations < 40 && stalled < 4 {
-        let q = quality(theta, &u);
-        if q.split_error < SPLIT_TARGET / 4.0 && q.leakage < LEAKAGE_TARGET / 4.0 {
+        if done(&quality(theta, &u)) {
             break;
         }
         iterations += 1;
@@ -328,6 +376,8 @@ fn refine_from(theta: f64, ctx: &CellContext, floor_nm: f64) -> Result<RefinedCe
         out_phases_rad: [out_u, out_l],
         in_phase_lower_rad: in_l,
         iterations,
+        jacobian: jac,
+        half_steps,
     })
 }
 
@@ -350,11 +400,8 @@ mod tests {
         let mut worst_analytic: f64 = 0.0;
         for theta in [0.05, 0.3, std::f64::consts::FRAC_PI_4, 1.2, 1.45, 1.55] {
             let cell = refine(theta, &ctx).unwrap();
-            worst_analytic = worst_analytic.max(
-                cell.analytic_quality
-                    .split_error
-                    .max(cell.analytic_quality.leakage),
-            );
+            let aq = cell.analytic_quality.clone().unwrap();
+            worst_analytic = worst_analytic.max(aq.split_error.max(aq.leakage));
             assert!(
                 cell.quality.split_error < SPLIT_TARGET,
                 "theta {theta}: {:?}",

@@ -16,18 +16,26 @@
 //! The figures compare the perturbed rail block R with the nominal one R0:
 //! the split error `|R_lu|^2 - |R0_lu|^2`, the power lost from the rails for
 //! a rail input (leakage), and the loss-normalised fidelity
-//! `|Tr(R0^dag R)|^2 / (2 Tr(R^dag R))` (physics.md section 7).
+//! `|Tr(R0^dag R)|^2 / (Tr(R0^dag R0) Tr(R^dag R))` (physics.md section 7,
+//! where R0 is unitary and `Tr(R0^dag R0) = 2`), as fabricated and
+//! **calibrated**: maximised over the diagonal phases of the neighbouring
+//! phase shifters on both sides, `D_out R D_in`, which a lab re-tunes after
+//! fabrication (physics.md section 7); a split cannot be re-tuned in a
+//! passive cell, so what the calibrated figure keeps is the split error.
 
 use super::geometric::CellError;
+use super::roughness::RoughEdges;
 use super::{CellDesign, coupler, refine};
+use crate::optics::random::SplitMix64;
 use crate::process::eim::{self, EffectiveIndex};
 use crate::process::law::{ProcessError, characterise};
 use crate::process::spec::Process;
 use nalgebra::DMatrix;
 use num_complex::Complex64;
+use rayon::prelude::*;
 
 /// One set of errors, nm (wavelength in nm too).
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
+#[derive(Clone, Debug, Default, PartialEq)]
 pub struct Perturbation {
     pub edge_bias_nm: f64,
     pub thickness_nm: f64,
@@ -35,6 +43,25 @@ pub struct Perturbation {
     /// Width errors of (upper rail, auxiliary guide, lower rail).
     pub width_nm: [f64; 3],
     pub wavelength_nm: f64,
+    /// Along-z edge roughness on top (roughness.rs).
+    pub rough: Option<std::sync::Arc<RoughEdges>>,
+}
+
+impl Perturbation {
+    /// This perturbation with every error scaled by s (roughness too).
+    pub fn scaled(&self, s: f64) -> Perturbation {
+        Perturbation {
+            edge_bias_nm: s * self.edge_bias_nm,
+            thickness_nm: s * self.thickness_nm,
+            one_sided_upper_nm: s * self.one_sided_upper_nm,
+            width_nm: self.width_nm.map(|w| s * w),
+            wavelength_nm: s * self.wavelength_nm,
+            rough: self
+                .rough
+                .as_ref()
+                .map(|r| std::sync::Arc::new(r.scaled(s))),
+        }
+    }
 }
 
 #[derive(Clone, Debug, PartialEq)]
@@ -45,6 +72,8 @@ pub struct Response {
     pub split_error: f64,
     pub leakage: f64,
     pub fidelity: f64,
+    /// With the neighbouring phase shifters re-tuned (module doc).
+    pub calibrated_fidelity: f64,
 }
 
 #[derive(Debug, thiserror::Error)]
@@ -98,43 +127,115 @@ pub fn respond(
                 let (gu, gl) = d.gaps_nm(z);
                 let slope = 2.0 * d.bend_nm_per_um2 * (z - d.length_um / 2.0) * 1e-3;
                 let dr = beta * ((1.0 + slope * slope).sqrt() - 1.0);
+                let (dg, dw) = e.rough.as_ref().map_or(([0.0; 2], [0.0; 3]), |r| r.at(z));
                 super::integrate::three_guide_h(
-                    law.k_per_um(gu),
-                    law.k_per_um(gl),
-                    [dr + du, dm, dr + dl],
+                    law.k_per_um(gu + dg[0]),
+                    law.k_per_um(gl + dg[1]),
+                    [
+                        dr + du + detune(dw[0]),
+                        dm + detune(dw[1]),
+                        dr + dl + detune(dw[2]),
+                    ],
                 )
             };
-            let u = refine::integrate_cell(&h, law.knots_nm(), &d, refine::INTEGRATION_TOL, None)?
-                .matrix;
+            // Break at the knots of the gaps as built (edge offsets taken
+            // at the cell centre; roughness moves them smoothly).
+            let mut built = d;
+            if let Some(r) = &e.rough {
+                let (dg, _) = r.at(d.length_um / 2.0);
+                built.gap_upper_nm += dg[0];
+                built.gap_lower_nm += dg[1];
+            }
+            let u =
+                refine::integrate_cell(&h, law.knots_nm(), &built, refine::INTEGRATION_TOL, None)?
+                    .matrix;
             let leak = u[(1, 0)].norm_sqr().max(u[(1, 2)].norm_sqr());
             (super::geometric::rail_block(&u), leak)
         }
         CellDesign::Coupler(k) => {
             let gap = k.gap_nm - 2.0 * e.edge_bias_nm - e.one_sided_upper_nm - (wu + wl) / 2.0;
             let d = [detune(wu + e.one_sided_upper_nm), detune(wl)];
-            let u = coupler::transfer_detuned(
+            let along = |z: f64| {
+                let (dg, dw) = e
+                    .rough
+                    .as_ref()
+                    .map_or((0.0, [0.0; 2]), |r| r.coupler_at(z));
+                (dg, [d[0] + detune(dw[0]), d[1] + detune(dw[1])])
+            };
+            let u = coupler::transfer_along(
                 law,
                 gap,
                 k.straight_um,
                 k.bend_radius_um,
                 k.bend_reach_um,
-                d,
+                &along,
             )?;
             (u, 0.0)
+        }
+        CellDesign::Mzi(m) => {
+            // Both couplers see the errors; a width error of one rail also
+            // detunes its arm, a phase (d_u - d_l) x arm length off the set
+            // phase (global errors widen both arms alike and cancel).
+            let k = &m.coupler;
+            let gap = k.gap_nm - 2.0 * e.edge_bias_nm - e.one_sided_upper_nm - (wu + wl) / 2.0;
+            let d = [detune(wu + e.one_sided_upper_nm), detune(wl)];
+            // Roughness runs along the whole cell: first coupler from z = 0,
+            // the arm, the second coupler after it.
+            let along_from = |z0: f64| {
+                let rough = e.rough.clone();
+                move |z: f64| {
+                    let (dg, dw) = rough
+                        .as_ref()
+                        .map_or((0.0, [0.0; 2]), |r| r.coupler_at(z0 + z));
+                    (dg, [d[0] + detune(dw[0]), d[1] + detune(dw[1])])
+                }
+            };
+            let transfer = |z0: f64| {
+                coupler::transfer_along(
+                    law,
+                    gap,
+                    k.straight_um,
+                    k.bend_radius_um,
+                    k.bend_reach_um,
+                    &along_from(z0),
+                )
+            };
+            let first = transfer(0.0)?;
+            let second = transfer(k.length_um + m.arm_um)?;
+            // The arm's phase error: int (d_u - d_l) dz by Simpson's rule.
+            let arm_detune = |z: f64| {
+                let (_, dw) = e
+                    .rough
+                    .as_ref()
+                    .map_or((0.0, [0.0; 2]), |r| r.coupler_at(k.length_um + z));
+                detune(wu + dw[0]) - detune(wl + dw[1])
+            };
+            let n = 200;
+            let hz = m.arm_um / n as f64;
+            let arm: f64 = (0..=n)
+                .map(|i| {
+                    let w = if i == 0 || i == n {
+                        1.0
+                    } else if i % 2 == 1 {
+                        4.0
+                    } else {
+                        2.0
+                    };
+                    w * arm_detune(i as f64 * hz)
+                })
+                .sum::<f64>()
+                * hz
+                / 3.0;
+            (super::mzi::compose(&first, &second, m.phase_rad - arm), 0.0)
         }
     };
     let (r, leakage) = block;
     let cross = r[(1, 0)].norm_sqr();
     let split_error = cross - nominal[(1, 0)].norm_sqr();
-    let tr: Complex64 = nominal
-        .iter()
-        .zip(r.iter())
-        .map(|(a, b)| a.conj() * b)
-        .sum();
-    let norm: f64 = r.iter().map(|z| z.norm_sqr()).sum();
     let deviation = (&r - nominal).iter().map(|z| z.norm()).fold(0.0, f64::max);
     Ok(Response {
-        fidelity: tr.norm_sqr() / (2.0 * norm),
+        fidelity: fidelity_of(&r, nominal),
+        calibrated_fidelity: calibrated_fidelity(&r, nominal),
         deviation,
         rail_block: r,
         split_error,
@@ -144,28 +245,134 @@ pub fn respond(
 
 /// The nominal rail block of a cell.
 pub fn nominal_block(cell: &CellDesign) -> DMatrix<Complex64> {
-    match cell {
-        CellDesign::Geometric(r) => r.rail_block.clone(),
-        CellDesign::Coupler(k) => k.transfer.clone(),
-    }
+    cell.rail_block()
 }
 
 /// One row of the sensitivity table: a source at one sigma of the process
 /// tolerances, and what it does to a cell and to its comparison cell.
+/// The first-order prediction at one sigma: the rail block linearised,
+/// `R0 + sigma dR/dx` with dR/dx by central differences at +-sigma/4.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FirstOrder {
+    pub split_error: f64,
+    pub infidelity: f64,
+    pub calibrated_infidelity: f64,
+}
+
 #[derive(Clone, Debug, PartialEq)]
 pub struct SensitivityRow {
     pub source: &'static str,
-    /// What the sigma is: `"2 nm edge shift"`.
     pub sigma_text: String,
+    /// Re-integrated at one sigma (for roughness: the ensemble's rms split
+    /// error, mean leakage and mean fidelity over `ROUGH_SAMPLES`).
     pub cell: Response,
     pub comparison: Response,
+    /// None for roughness, which has no one-sigma direction.
+    pub first_order: Option<(FirstOrder, FirstOrder)>,
 }
 
-/// Every source of language.md's tolerance keys that acts on a single cell,
-/// at +1 sigma of the process's tolerances. `edge_local` acts on one edge
-/// (one-sided) and, as a width error of one guide (both edges, sigma
-/// sqrt(2) times that), on each guide in turn. Sources the process sets to
-/// zero are left out; the wavelength, when zero, is shown at 1 nm.
+/// Realisations behind the roughness row.
+pub const ROUGH_SAMPLES: usize = 8;
+
+/// Loss-normalised fidelity of R against R0 (module doc).
+pub fn fidelity_of(r: &DMatrix<Complex64>, nominal: &DMatrix<Complex64>) -> f64 {
+    let tr: Complex64 = nominal
+        .iter()
+        .zip(r.iter())
+        .map(|(a, b)| a.conj() * b)
+        .sum();
+    let norm: f64 = r.iter().map(|z| z.norm_sqr()).sum();
+    let norm0: f64 = nominal.iter().map(|z| z.norm_sqr()).sum();
+    if norm == 0.0 || norm0 == 0.0 {
+        return 0.0;
+    }
+    tr.norm_sqr() / (norm0 * norm)
+}
+
+/// The fidelity maximised over `D_out R D_in`, diagonal phases on both
+/// sides: `|sum_ij w_ij e^{i(a_i + b_j)}|` with `w_ij = conj(R0_ij) R_ij`,
+/// by coordinate ascent (each phase has a closed-form optimum given the
+/// others; 2 x 2 needs a few sweeps, 50 leave it converged to rounding).
+pub fn calibrated_fidelity(r: &DMatrix<Complex64>, nominal: &DMatrix<Complex64>) -> f64 {
+    let (n, m) = (r.nrows(), r.ncols());
+    let w = DMatrix::from_fn(n, m, |i, j| nominal[(i, j)].conj() * r[(i, j)]);
+    let mut a = vec![0.0f64; n];
+    let mut b = vec![0.0f64; m];
+    let e = |x: f64| Complex64::from_polar(1.0, x);
+    for _ in 0..50 {
+        for i in 0..n {
+            let s: Complex64 = (0..m).map(|j| w[(i, j)] * e(b[j])).sum();
+            let rest: Complex64 = (0..n)
+                .filter(|&k| k != i)
+                .flat_map(|k| (0..m).map(move |j| (k, j)))
+                .map(|(k, j)| w[(k, j)] * e(a[k] + b[j]))
+                .sum();
+            a[i] = if s.norm() > 0.0 {
+                rest.arg() - s.arg()
+            } else {
+                0.0
+            };
+        }
+        for j in 0..m {
+            let s: Complex64 = (0..n).map(|i| w[(i, j)] * e(a[i])).sum();
+            let rest: Complex64 = (0..m)
+                .filter(|&k| k != j)
+                .flat_map(|k| (0..n).map(move |i| (i, k)))
+                .map(|(i, k)| w[(i, k)] * e(a[i] + b[k]))
+                .sum();
+            b[j] = if s.norm() > 0.0 {
+                rest.arg() - s.arg()
+            } else {
+                0.0
+            };
+        }
+    }
+    let d = DMatrix::from_fn(n, m, |i, j| r[(i, j)] * e(a[i] + b[j]));
+    fidelity_of(&d, nominal).max(fidelity_of(r, nominal))
+}
+
+/// The first-order figures of `e` (module doc of [`FirstOrder`]).
+pub fn first_order(
+    cell: &CellDesign,
+    p: &Process,
+    e: &Perturbation,
+    nominal: &DMatrix<Complex64>,
+) -> Result<FirstOrder, SensitivityError> {
+    let plus = respond(cell, p, &e.scaled(0.25), nominal)?;
+    let minus = respond(cell, p, &e.scaled(-0.25), nominal)?;
+    // sigma dR/dx = (R(+s/4) - R(-s/4)) / (2 / 4)
+    let linear = nominal + (&plus.rail_block - &minus.rail_block) * Complex64::new(2.0, 0.0);
+    Ok(FirstOrder {
+        split_error: linear[(1, 0)].norm_sqr() - nominal[(1, 0)].norm_sqr(),
+        infidelity: (1.0 - fidelity_of(&linear, nominal)).max(0.0),
+        calibrated_infidelity: (1.0 - calibrated_fidelity(&linear, nominal)).max(0.0),
+    })
+}
+
+/// The mean over an ensemble: rms split error and deviation, mean leakage
+/// and fidelity.
+fn ensemble(rs: &[Response]) -> Response {
+    let n = rs.len().max(1) as f64;
+    let rms =
+        |f: &dyn Fn(&Response) -> f64| (rs.iter().map(|r| f(r).powi(2)).sum::<f64>() / n).sqrt();
+    Response {
+        rail_block: rs[0].rail_block.clone(),
+        deviation: rms(&|r| r.deviation),
+        split_error: rms(&|r| r.split_error),
+        leakage: rs.iter().map(|r| r.leakage).sum::<f64>() / n,
+        fidelity: rs.iter().map(|r| r.fidelity).sum::<f64>() / n,
+        calibrated_fidelity: rs.iter().map(|r| r.calibrated_fidelity).sum::<f64>() / n,
+    }
+}
+
+/// The seed of sample `i` of a stream: independent streams per sample, so
+/// results do not depend on the thread count.
+fn sample_rng(seed: u64, i: usize) -> SplitMix64 {
+    let mut r = SplitMix64::new(seed ^ (i as u64).wrapping_mul(0xD1B5_4A32_D192_ED03));
+    r.next_u64();
+    r
+}
+
 pub fn table(
     cell: &CellDesign,
     comparison: &CellDesign,
@@ -242,7 +449,8 @@ pub fn table(
         ),
     ];
     let (n1, n2) = (nominal_block(cell), nominal_block(comparison));
-    rows.into_iter()
+    let mut out: Vec<SensitivityRow> = rows
+        .into_par_iter()
         .filter(|(_, _, e)| *e != Perturbation::default())
         .map(|(source, sigma_text, e)| {
             Ok(SensitivityRow {
@@ -250,6 +458,149 @@ pub fn table(
                 sigma_text,
                 cell: respond(cell, p, &e, &n1)?,
                 comparison: respond(comparison, p, &e, &n2)?,
+                first_order: Some((
+                    first_order(cell, p, &e, &n1)?,
+                    first_order(comparison, p, &e, &n2)?,
+                )),
+            })
+        })
+        .collect::<Result<_, SensitivityError>>()?;
+    if t.roughness_nm > 0.0 {
+        let samples: Vec<(Response, Response)> = (0..ROUGH_SAMPLES)
+            .into_par_iter()
+            .map(|i| {
+                let mut rng = sample_rng(0x5EED_0001, i);
+                let e = Perturbation {
+                    rough: Some(std::sync::Arc::new(RoughEdges::sample(
+                        t.roughness_nm,
+                        t.correlation_um,
+                        &mut rng,
+                    ))),
+                    ..Default::default()
+                };
+                Ok((respond(cell, p, &e, &n1)?, respond(comparison, p, &e, &n2)?))
+            })
+            .collect::<Result<_, SensitivityError>>()?;
+        let (a, b): (Vec<Response>, Vec<Response>) = samples.into_iter().unzip();
+        out.push(SensitivityRow {
+            source: "roughness",
+            sigma_text: format!(
+                "{} nm rms per edge, correlation {} um ({ROUGH_SAMPLES} realisations)",
+                t.roughness_nm, t.correlation_um
+            ),
+            cell: ensemble(&a),
+            comparison: ensemble(&b),
+            first_order: None,
+        });
+    }
+    Ok(out)
+}
+
+/// Statistics of one cell over a Monte Carlo of fabrication.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MonteCarlo {
+    pub samples: usize,
+    pub seed: u64,
+    pub infidelity_mean: f64,
+    pub infidelity_median: f64,
+    /// The 95th percentile (5 % of chips are worse).
+    pub infidelity_p95: f64,
+    pub split_error_rms: f64,
+    pub leakage_mean: f64,
+    /// Mean 1 - F with the neighbouring phase shifters re-tuned.
+    pub calibrated_infidelity_mean: f64,
+}
+
+/// A Monte Carlo of `samples` fabricated cells (physics.md's budget, per
+/// cell): each draws a die-level edge bias and thickness bias, an
+/// independent local error for each of its six edges (four for a coupler),
+/// and along-z roughness, all normal with the process's one-sigma values.
+/// Reproducible for any thread count (one stream per sample).
+pub fn monte_carlo(
+    cell: &CellDesign,
+    p: &Process,
+    samples: usize,
+    seed: u64,
+) -> Result<MonteCarlo, SensitivityError> {
+    let t = &p.tolerances;
+    let nominal = nominal_block(cell);
+    let samples = samples.max(1);
+    let mut rs: Vec<Response> = (0..samples)
+        .into_par_iter()
+        .map(|i| {
+            let mut rng = sample_rng(seed, i);
+            let edge_bias_nm = t.edge_bias_nm * rng.normal();
+            let thickness_nm = t.thickness_bias_nm * rng.normal();
+            let wavelength_nm = t.wavelength_nm * rng.normal();
+            let mut rough = RoughEdges::sample(t.roughness_nm, t.correlation_um, &mut rng);
+            for e in rough.edges.iter_mut() {
+                e.offset_nm = t.edge_local_nm * rng.normal();
+            }
+            let e = Perturbation {
+                edge_bias_nm,
+                thickness_nm,
+                wavelength_nm,
+                rough: Some(std::sync::Arc::new(rough)),
+                ..Default::default()
+            };
+            respond(cell, p, &e, &nominal)
+        })
+        .collect::<Result<_, SensitivityError>>()?;
+    rs.sort_by(|a, b| b.fidelity.total_cmp(&a.fidelity));
+    let inf: Vec<f64> = rs.iter().map(|r| (1.0 - r.fidelity).max(0.0)).collect();
+    let pick = |q: f64| inf[((q * (inf.len() - 1) as f64).round() as usize).min(inf.len() - 1)];
+    let e = ensemble(&rs);
+    Ok(MonteCarlo {
+        samples,
+        seed,
+        infidelity_mean: inf.iter().sum::<f64>() / inf.len().max(1) as f64,
+        infidelity_median: pick(0.5),
+        infidelity_p95: pick(0.95),
+        split_error_rms: e.split_error,
+        leakage_mean: e.leakage,
+        calibrated_infidelity_mean: (1.0 - e.calibrated_fidelity).max(0.0),
+    })
+}
+
+/// One row of the width trade: both cells designed for guides of
+/// `width_nm`, their lengths and Monte Carlo figures.
+#[derive(Clone, Debug, PartialEq)]
+pub struct WidthRow {
+    pub width_nm: f64,
+    pub cell_length_um: f64,
+    pub comparison_length_um: f64,
+    pub cell: MonteCarlo,
+    pub comparison: MonteCarlo,
+}
+
+/// The width trade (issue: wider guides are less sensitive to edge
+/// errors, since dn_eff/dw and the coupling's dependence on width fall,
+/// but couple more weakly and so make longer cells).
+#[allow(clippy::too_many_arguments)]
+pub fn width_trade(
+    kind: super::CellKind,
+    other: super::CellKind,
+    theta: f64,
+    p: &Process,
+    rule: super::geometric::LengthRule,
+    widths_nm: &[f64],
+    samples: usize,
+    seed: u64,
+) -> Result<Vec<WidthRow>, super::DesignError> {
+    widths_nm
+        .iter()
+        .map(|&w| {
+            let mut q = p.clone();
+            q.width_nm = w;
+            let (a, _) = super::design(kind, theta, &q, rule)?;
+            let (b, _) = super::design(other, theta, &q, rule)?;
+            let mc = |c: &CellDesign| monte_carlo(c, &q, samples, seed);
+            Ok(WidthRow {
+                width_nm: w,
+                cell_length_um: a.length_um(),
+                comparison_length_um: b.length_um(),
+                cell: mc(&a).map_err(super::DesignError::from)?,
+                comparison: mc(&b).map_err(super::DesignError::from)?,
             })
         })
         .collect()
@@ -433,5 +784,208 @@ mod tests {
         .unwrap();
         let infidelity = 1.0 - r.fidelity;
         assert!((0.003..0.015).contains(&infidelity), "1 - F = {infidelity}");
+    }
+
+    #[test]
+    fn calibration_removes_phases_and_keeps_split_errors() {
+        // The calibrated fidelity of D_out R0 D_in is 1 (phases are what
+        // the neighbouring shifters re-tune). For a split error it is
+        // checked against a brute-force grid over the three relative phases
+        // (an independent maximisation over 48^3 points, which cannot beat
+        // the true optimum and comes within its grid step of it), and
+        // against the bound sum |w_ij| = 2 cos(t - t0), which phases reach
+        // here: 1 - F_cal = sin^2(t - t0).
+        let rot = |t: f64| {
+            DMatrix::from_row_slice(
+                2,
+                2,
+                &[
+                    Complex64::new(t.cos(), 0.0),
+                    Complex64::new(0.0, -t.sin()),
+                    Complex64::new(0.0, -t.sin()),
+                    Complex64::new(t.cos(), 0.0),
+                ],
+            )
+        };
+        let e = |x: f64| Complex64::from_polar(1.0, x);
+        let diag = |a: f64, b: f64| {
+            let mut d = DMatrix::<Complex64>::identity(2, 2);
+            d[(0, 0)] = e(a);
+            d[(1, 1)] = e(b);
+            d
+        };
+        let r0 = rot(0.7);
+        let phased = diag(0.4, -1.1) * &r0 * diag(0.0, 2.3);
+        assert!(fidelity_of(&phased, &r0) < 0.9);
+        assert!((calibrated_fidelity(&phased, &r0) - 1.0).abs() < 1e-12);
+        let off = diag(0.3, -0.2) * rot(0.74) * diag(0.0, 0.9);
+        // the grid: 48 values of each of the three relative phases
+        let n = 48;
+        let ph = |t: usize| 2.0 * std::f64::consts::PI * t as f64 / n as f64;
+        let mut grid: f64 = 0.0;
+        for i in 0..n {
+            for j in 0..n {
+                for k in 0..n {
+                    let d = diag(0.0, ph(i)) * &off * diag(ph(j), ph(k));
+                    grid = grid.max(fidelity_of(&d, &r0));
+                }
+            }
+        }
+        let cal = calibrated_fidelity(&off, &r0);
+        assert!(
+            cal >= grid - 1e-12 && cal - grid < 1e-2,
+            "{cal} vs grid {grid}"
+        );
+        // the split error left: |sin(0.74 - 0.7)|^2 = 1 - cos^2(0.04)
+        assert!(
+            (1.0 - cal - (0.04f64).sin().powi(2)).abs() < 1e-9,
+            "{}",
+            1.0 - cal
+        );
+    }
+
+    #[test]
+    fn the_first_order_prediction_holds_for_small_errors() {
+        // dR/dx by central differences: at a fifth of the process's edge
+        // bias the linear prediction of the split change agrees with the
+        // re-integrated one to 3 % (the neglected term is second order).
+        let (p, g, c) = both();
+        for cell in [&g, &c] {
+            let n = nominal_block(cell);
+            let e = Perturbation {
+                edge_bias_nm: 0.2 * p.tolerances.edge_bias_nm,
+                ..Default::default()
+            };
+            let exact = respond(cell, &p, &e, &n).unwrap().split_error;
+            let lin = first_order(cell, &p, &e, &n).unwrap().split_error;
+            assert!(
+                (exact - lin).abs() < 0.03 * exact.abs(),
+                "{:?}: exact {exact:e}, linear {lin:e}",
+                cell.kind()
+            );
+        }
+    }
+
+    #[test]
+    fn slow_roughness_is_a_constant_edge_error() {
+        // A roughness realisation with a correlation length far above the
+        // cell is constant along it: the z-dependent profile must then give
+        // what the same constant edge offsets give. (At L_c = 1e7 um it
+        // already drifts 6e-6 nm along a 60 um cell, which a rail's
+        // detuning of 5e-3 rad/um/nm turns into 2e-6 of phase: hence 1e10.)
+        let (p, g, c) = both();
+        let mut rng = SplitMix64::new(3);
+        let mut rough = RoughEdges::sample(0.7, 1e10, &mut rng);
+        for e in rough.edges.iter_mut() {
+            e.offset_nm = 0.0;
+        }
+        let (dg, dw) = rough.at(0.0);
+        let cst = rough.coupler_at(0.0);
+        for cell in [&g, &c] {
+            let n = nominal_block(cell);
+            let z = respond(
+                cell,
+                &p,
+                &Perturbation {
+                    rough: Some(std::sync::Arc::new(rough.clone())),
+                    ..Default::default()
+                },
+                &n,
+            )
+            .unwrap();
+            // the same as constant edge offsets; compare with offsets placed
+            // directly on the profiles (amplitude zero)
+            let mut flat = rough.scaled(0.0);
+            for (i, e) in flat.edges.iter_mut().enumerate() {
+                e.offset_nm = rough.edges[i].at(0.0);
+            }
+            let f = respond(
+                cell,
+                &p,
+                &Perturbation {
+                    rough: Some(std::sync::Arc::new(flat)),
+                    ..Default::default()
+                },
+                &n,
+            )
+            .unwrap();
+            assert!(
+                (&z.rail_block - &f.rail_block)
+                    .iter()
+                    .all(|x| x.norm() < 1e-7),
+                "{:?} {dg:?} {dw:?} {cst:?} {:e}",
+                cell.kind(),
+                (&z.rail_block - &f.rail_block)
+                    .iter()
+                    .map(|x| x.norm())
+                    .fold(0.0, f64::max)
+            );
+            assert!(z.split_error.abs() > 1e-6, "the errors do act");
+        }
+    }
+
+    #[test]
+    fn monte_carlo_is_reproducible_and_matches_the_linear_spread() {
+        // With only the die-level edge bias on, the split error of a
+        // sample is (to first order) the linear coefficient times a normal
+        // draw, so the Monte Carlo's rms split error is |coefficient| x
+        // sigma up to sampling noise (48 samples: about 10 % one sigma of
+        // an rms estimate, so 30 % is a 3-sigma bound). Same seed, same
+        // figures, on one thread or many.
+        let (mut p, g, _) = both();
+        let t = &mut p.tolerances;
+        (
+            t.thickness_bias_nm,
+            t.edge_local_nm,
+            t.roughness_nm,
+            t.wavelength_nm,
+        ) = (0.0, 0.0, 0.0, 0.0);
+        let e = Perturbation {
+            edge_bias_nm: p.tolerances.edge_bias_nm,
+            ..Default::default()
+        };
+        let lin = first_order(&g, &p, &e, &nominal_block(&g))
+            .unwrap()
+            .split_error;
+        let mc = monte_carlo(&g, &p, 48, 11).unwrap();
+        assert!(
+            (mc.split_error_rms / lin.abs() - 1.0).abs() < 0.3,
+            "rms {:e} vs linear {lin:e}",
+            mc.split_error_rms
+        );
+        let one = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap()
+            .install(|| monte_carlo(&g, &p, 48, 11).unwrap());
+        assert_eq!(one, mc);
+        assert!(mc.infidelity_p95 >= mc.infidelity_median);
+    }
+
+    #[test]
+    fn an_mzi_split_is_second_order_in_a_common_bias() {
+        // U = C P C: |U_lu|^2 = sin^2(2 kappa) cos^2(phi / 2), and at
+        // kappa = pi/4 + d, sin^2(2 kappa) = cos^2(2 d) = 1 - 4 d^2: the
+        // split moves quadratically with a common coupler error (the
+        // transfer matrix in mzi.rs). Doubling the bias multiplies the split
+        // change by about 4, where the coupler's doubles.
+        let (p, _, _) = both();
+        let (m, _) = crate::cell::design(
+            crate::cell::CellKind::Mzi,
+            FRAC_PI_4,
+            &p,
+            LengthRule::Shortest,
+        )
+        .unwrap();
+        let n = nominal_block(&m);
+        let at = |b: f64| {
+            let e = Perturbation {
+                thickness_nm: b,
+                ..Default::default()
+            };
+            respond(&m, &p, &e, &n).unwrap().split_error
+        };
+        let r = at(2.0) / at(1.0);
+        assert!((3.5..4.5).contains(&r), "ratio {r}");
     }
 }

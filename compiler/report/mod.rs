@@ -3,6 +3,7 @@
 //! documented in docs/json.md.
 
 pub mod cell;
+pub mod cell_sweep;
 pub mod process;
 pub mod simulate;
 

@@ -355,3 +355,43 @@ def test_coupler_transfer_matches_own_integration(run_json, split):
     exact = np.array([[math.cos(phi), -1j * math.sin(phi)], [-1j * math.sin(phi), math.cos(phi)]])
     assert np.max(np.abs(u - exact)) < 1e-9
     assert abs(math.sin(phi) ** 2 - split) < 1e-8
+
+
+# --------------------------------------------------------------------------
+# Mach-Zehnder interferometers
+# --------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("theta", [0.3, 1.1])
+def test_mzi_is_two_couplers_around_its_phase(run_json, theta):
+    # Born & Wolf, Principles of Optics (1999) section 7.5: U = C P C with
+    # P = diag(e^{i phi}, 1); for 50:50 couplers |U_lu|^2 = cos^2(phi / 2),
+    # so phi = pi - 2 theta. Each coupler re-integrated here from its
+    # geometry on the process's own spline.
+    proc = run_json("process", "si220_wire")
+    m = run_json("cell", "--theta", repr(theta), "--cell", "mzi", "--samples", "0")
+    assert m["kind"] == "mzi"
+    c, _ = coupler_transfer(m["coupler"], proc)
+    p = np.diag([np.exp(1j * m["phase_rad"]), 1.0])
+    u = c @ p @ c
+    assert np.max(np.abs(u - complex_matrix(m["rail_block"]))) < 1e-8
+    assert abs(abs(u[1, 0]) ** 2 - math.sin(theta) ** 2) < 1e-8
+    assert abs(m["phase_rad"] - (math.pi - 2 * theta)) < 1e-3
+    assert abs(m["length_um"] - 2 * m["coupler"]["length_um"] - m["arm_um"]) < 1e-9
+
+
+def test_sweep_figure_parses_as_svg(trilane, tmp_path):
+    # The --sweep figure is well-formed XML (xml.etree) with three panels'
+    # plotted series; no half-written file on a bad name.
+    out = tmp_path / "sweep.svg"
+    r = trilane("cell", "--theta", "0.7854", "--samples", "0", "--sweep", str(out))
+    assert r.returncode == 0, r.stderr
+    import xml.etree.ElementTree as ET
+
+    root = ET.parse(out).getroot()
+    assert root.tag.endswith("svg")
+    texts = "".join(t.text or "" for t in root.iter() if t.tag.endswith("text"))
+    for caption in ("cross power vs gap difference", "power left in the auxiliary guide", "1 - F against edge bias"):
+        assert caption in texts
+    lines = [e for e in root.iter() if e.tag.endswith("polyline")]
+    assert len(lines) >= 4

@@ -1,0 +1,128 @@
+//! A cache of refined geometric cells on a theta grid, so a mesh of many
+//! cells designs quickly: each grid point is refined once (refine.rs); a
+//! cell of any theta starts from its analytic design plus the refinement's
+//! correction of the two gaps interpolated between the neighbouring grid
+//! points (the correction is smooth in theta), and is then polished with
+//! the neighbour's Jacobian and step count (Broyden updates from there).
+//! Every cell it returns meets the same targets as a fresh refinement.
+//!
+//! The grid is uniform in theta over (0, pi/2], with points at
+//! `theta_k = (k + 1/2) pi / (2 n)`, and the correction interpolated
+//! linearly between the two nearest (constant beyond the ends).
+
+use super::geometric::{self, CellError};
+use super::refine::{self, CellContext, RefinedCell};
+use rayon::prelude::*;
+
+pub struct DesignCache<'a> {
+    ctx: &'a CellContext<'a>,
+    thetas: Vec<f64>,
+    cells: Vec<RefinedCell>,
+}
+
+impl<'a> DesignCache<'a> {
+    /// Refines `points` cells across (0, pi/2] in parallel.
+    pub fn build(ctx: &'a CellContext<'a>, points: usize) -> Result<DesignCache<'a>, CellError> {
+        let n = points.max(2);
+        let thetas: Vec<f64> = (0..n)
+            .map(|k| (k as f64 + 0.5) * std::f64::consts::FRAC_PI_2 / n as f64)
+            .collect();
+        let cells = thetas
+            .par_iter()
+            .map(|&t| refine::refine(t, ctx))
+            .collect::<Result<Vec<_>, _>>()?;
+        Ok(DesignCache { ctx, thetas, cells })
+    }
+
+    pub fn points(&self) -> usize {
+        self.thetas.len()
+    }
+
+    /// The refined cell of `theta`, polished from the cache.
+    pub fn design(&self, theta: f64) -> Result<RefinedCell, CellError> {
+        if !(theta > 0.0 && theta <= std::f64::consts::FRAC_PI_2 + 1e-12) {
+            return Err(CellError::Theta(theta));
+        }
+        let n = self.thetas.len();
+        let step = self.thetas[1] - self.thetas[0];
+        let x = ((theta - self.thetas[0]) / step).clamp(0.0, (n - 1) as f64);
+        let k = (x.floor() as usize).min(n - 2);
+        let w = x - k as f64;
+        let correction = |c: &RefinedCell| {
+            (
+                c.design.gap_upper_nm - c.analytic.gap_upper_nm,
+                c.design.gap_lower_nm - c.analytic.gap_lower_nm,
+            )
+        };
+        let (a, b) = (&self.cells[k], &self.cells[k + 1]);
+        let (ua, la) = correction(a);
+        let (ub, lb) = correction(b);
+        let ctx = self.ctx;
+        let mut start =
+            geometric::analytic(theta, ctx.fit, ctx.min_gap_nm, ctx.rule, ctx.residual)?;
+        start.gap_upper_nm += (1.0 - w) * ua + w * ub;
+        start.gap_lower_nm += (1.0 - w) * la + w * lb;
+        let near = if w < 0.5 { a } else { b };
+        // A grid cell that had to raise its closer gap to keep the minimum
+        // gap is not a smooth neighbour: refine that theta afresh.
+        let raised = |c: &RefinedCell| {
+            (c.analytic.gap_lower_nm.min(c.analytic.gap_upper_nm) - ctx.min_gap_nm).abs() > 1e-6
+        };
+        if raised(a) || raised(b) {
+            return refine::refine(theta, ctx);
+        }
+        let cell = refine::polish(theta, ctx, start, near.jacobian, near.half_steps)?;
+        let lowest = cell.design.gap_lower_nm.min(cell.design.gap_upper_nm);
+        let met = cell.quality.split_error < refine::SPLIT_TARGET
+            && cell.quality.leakage < refine::LEAKAGE_TARGET;
+        if lowest < ctx.min_gap_nm - 1e-6
+            || (!met && (near.quality.split_error < refine::SPLIT_TARGET))
+        {
+            // Outside what a polish can reach: the full refinement.
+            return refine::refine(theta, ctx);
+        }
+        Ok(cell)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cell::geometric::LengthRule;
+    use crate::process::eim::EffectiveIndex;
+    use crate::process::law::characterise;
+    use crate::process::presets::preset;
+
+    #[test]
+    fn cached_designs_meet_the_targets_and_agree_with_fresh_refinement() {
+        // physics.md section 3's targets for every polished cell, and the
+        // same geometry as a fresh refinement (both solve the same two
+        // equations; they agree to the size of the targets' slack).
+        let p = preset("si220_wire").unwrap();
+        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let ctx = CellContext::of(&p, &c, LengthRule::Shortest, 1e-3);
+        let cache = DesignCache::build(&ctx, 24).unwrap();
+        for theta in [0.05, 0.333, 0.9, 1.234, 1.5] {
+            let cell = cache.design(theta).unwrap();
+            assert!(
+                cell.quality.split_error < refine::SPLIT_TARGET,
+                "{theta}: {:?}",
+                cell.quality
+            );
+            assert!(
+                cell.quality.leakage < refine::LEAKAGE_TARGET,
+                "{theta}: {:?}",
+                cell.quality
+            );
+            let fresh = refine::refine(theta, &ctx).unwrap();
+            assert!((cell.design.gap_upper_nm - fresh.design.gap_upper_nm).abs() < 0.05);
+            assert!((cell.design.gap_lower_nm - fresh.design.gap_lower_nm).abs() < 0.05);
+            assert!(
+                cell.iterations <= 3,
+                "{theta}: {} iterations",
+                cell.iterations
+            );
+        }
+        assert!(cache.design(0.0).is_err());
+    }
+}
