@@ -10,6 +10,7 @@ pub mod presets;
 pub mod slab;
 pub mod spec;
 pub mod table;
+pub mod vector;
 
 use crate::circuit::{FileLoader, ProcessRef};
 use crate::diagnostic::Diagnostic;
