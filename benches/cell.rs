@@ -1,5 +1,5 @@
 //! The geometric cell: one integration of a designed pi/4 cell to 1e-9
-//! (sixth-order Magnus between the law's knots, `trilane::cell::integrate`),
+//! (fourth-order Magnus, `trilane::cell::integrate`),
 //! probing its step count or from a trusted one, and one whole design:
 //! the analytic design on the exponential fit and its refinement on the
 //! smooth law with path detuning (`trilane::cell::refine`), on si220_wire;

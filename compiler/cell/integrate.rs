@@ -19,9 +19,10 @@
 //! Omega = a1 + a3 / 12 + (1/240) [-20 a1 - a3 + C1, a2 + C2]
 //! ```
 //!
-//! The cells use the sixth-order method: at the 1e-9 of a designed cell it
-//! needs about a third of the fourth-order method's steps (DEVELOPERS.md,
-//! benches/cell.rs); both are tested for their order.
+//! Both are tested for their order. The geometric cells use the fourth-order
+//! method on equal steps, the fastest at their tolerances (measured in
+//! `cell::refine::integrate_cell`); the sixth-order one with breaks at the
+//! coupling law's knots is the accurate choice near rounding level.
 //!
 //! For a Hermitian H(z), Omega is anti-Hermitian and each step is a
 //! unitary: `exp(Omega) = exp(-i M)` with `M = i Omega` Hermitian, taken to

@@ -696,6 +696,15 @@ mod tests {
         let rc = (cross(&coupler(10.0)) - 0.5).abs() / (cross(&coupler(5.0)) - 0.5).abs();
         assert!((rg - 3.8).abs() < 0.3, "cell ratio {rg}");
         assert!((rc - 1.95).abs() < 0.1, "coupler ratio {rc}");
+        // The "split error at least 10x smaller than the coupler's"
+        // holds for small biases, where the cell's error is quadratic and
+        // the coupler's linear: at 2 nm the ratio is about 19 (from the
+        // mixture formula, eta/2 = (1 + cos(s pi))/2, s = exp(2/119)); by
+        // 10 nm it has fallen to about 4. Both measured here.
+        let ratio = |b: f64| (cross(&coupler(b)) - 0.5).abs() / (cross(&cell(b).0) - ideal).abs();
+        assert!(ratio(2.0) > 10.0, "2 nm: {}", ratio(2.0));
+        assert!(ratio(-2.0) > 10.0, "-2 nm: {}", ratio(-2.0));
+        assert!((2.5..6.0).contains(&ratio(10.0)), "10 nm: {}", ratio(10.0));
     }
 
     #[test]
