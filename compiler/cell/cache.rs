@@ -49,7 +49,6 @@ impl<'a> DesignCache<'a> {
         let step = self.thetas[1] - self.thetas[0];
         let x = ((theta - self.thetas[0]) / step).clamp(0.0, (n - 1) as f64);
         let k = (x.floor() as usize).min(n - 2);
-        let w = x - k as f64;
         let correction = |c: &RefinedCell| {
             (
                 c.design.gap_upper_nm - c.analytic.gap_upper_nm,
@@ -83,8 +82,7 @@ impl<'a> DesignCache<'a> {
             geometric::analytic(theta, ctx.fit, ctx.min_gap_nm, ctx.rule, ctx.residual)?;
         start.gap_upper_nm += du;
         start.gap_lower_nm += dl;
-        let _ = w;
-        let near = if w < 0.5 { a } else { b };
+        let near = if x - (k as f64) < 0.5 { a } else { b };
         // A grid cell that had to raise its closer gap to keep the minimum
         // gap is not a smooth neighbour: refine that theta afresh.
         let raised = |c: &RefinedCell| {
