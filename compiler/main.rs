@@ -125,48 +125,7 @@ enum Command {
     /// auxiliary guide are within 1e-6. `coupler` is the directional-coupler
     /// baseline of the same split, `mzi` two 50:50 couplers around a
     /// thermal phase shifter.
-    Cell {
-        /// The rotation angle theta in (0, pi/2], radians (cross power sin^2 theta)
-        #[arg(
-            long,
-            value_name = "RAD",
-            conflicts_with = "split",
-            required_unless_present = "split",
-            allow_negative_numbers = true
-        )]
-        theta: Option<f64>,
-        /// The cross power fraction in (0, 1] instead of theta
-        #[arg(long, value_name = "C", allow_negative_numbers = true)]
-        split: Option<f64>,
-        /// The process: a preset name or a process file
-        #[arg(long, value_name = "NAME|FILE", default_value = "si220_wire")]
-        process: String,
-        /// Cell kind
-        #[arg(long = "cell", value_enum, default_value = "geometric")]
-        kind: CellKindArg,
-        /// Geometric cells: the shortest cell for this theta, or the uniform
-        /// length a mesh shares
-        #[arg(long = "cell-length", value_enum, default_value = "shortest")]
-        length: LengthArg,
-        /// Guide width(s) in nm: the cell is designed for the first; with
-        /// several (`--width 500,600,700`) a width trade table compares
-        /// lengths and Monte Carlo fidelity for each
-        #[arg(long, value_name = "NM", value_delimiter = ',')]
-        width: Vec<f64>,
-        /// Write a figure: cross power and auxiliary leakage against the gap
-        /// difference, and 1-F against edge bias for both cells
-        #[arg(long, value_name = "FILE.svg")]
-        sweep: Option<PathBuf>,
-        /// Monte Carlo samples per cell (0 switches it off)
-        #[arg(long, value_name = "N", default_value_t = 32)]
-        samples: usize,
-        /// Monte Carlo seed
-        #[arg(long, value_name = "S", default_value_t = 1)]
-        seed: u64,
-        /// Print one JSON document on stdout instead of the summary
-        #[arg(long)]
-        json: bool,
-    },
+    Cell(CellArgs),
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
@@ -217,29 +176,7 @@ fn main() -> ExitCode {
                 plot,
                 json,
             } => process(&target, table.as_deref(), plot.as_deref(), json),
-            Command::Cell {
-                theta,
-                split,
-                process,
-                kind,
-                length,
-                width,
-                sweep,
-                samples,
-                seed,
-                json,
-            } => cell(CellArgs {
-                theta,
-                split,
-                process,
-                kind,
-                length,
-                width,
-                sweep,
-                samples,
-                seed,
-                json,
-            }),
+            Command::Cell(a) => cell(a),
         });
     let code = match work.map(|h| h.join()) {
         Ok(Ok(code)) => code,
@@ -733,16 +670,47 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
     0
 }
 
+#[derive(clap::Args)]
 struct CellArgs {
+    /// The rotation angle theta in (0, pi/2], radians (cross power sin^2 theta)
+    #[arg(
+        long,
+        value_name = "RAD",
+        conflicts_with = "split",
+        required_unless_present = "split",
+        allow_negative_numbers = true
+    )]
     theta: Option<f64>,
+    /// The cross power fraction in (0, 1] instead of theta
+    #[arg(long, value_name = "C", allow_negative_numbers = true)]
     split: Option<f64>,
+    /// The process: a preset name or a process file
+    #[arg(long, value_name = "NAME|FILE", default_value = "si220_wire")]
     process: String,
+    /// Cell kind
+    #[arg(long = "cell", value_enum, default_value = "geometric")]
     kind: CellKindArg,
+    /// Geometric cells: the shortest cell for this theta, or the uniform
+    /// length a mesh shares
+    #[arg(long = "cell-length", value_enum, default_value = "shortest")]
     length: LengthArg,
+    /// Guide width(s) in nm: the cell is designed for the first; with
+    /// several (`--width 500,600,700`) a width trade table compares
+    /// lengths and Monte Carlo fidelity for each
+    #[arg(long, value_name = "NM", value_delimiter = ',')]
     width: Vec<f64>,
+    /// Write a figure: cross power and auxiliary leakage against the gap
+    /// difference, and 1-F against edge bias for both cells
+    #[arg(long, value_name = "FILE.svg")]
     sweep: Option<PathBuf>,
+    /// Monte Carlo samples per cell (0 switches it off)
+    #[arg(long, value_name = "N", default_value_t = 32)]
     samples: usize,
+    /// Monte Carlo seed
+    #[arg(long, value_name = "S", default_value_t = 1)]
     seed: u64,
+    /// Print one JSON document on stdout instead of the summary
+    #[arg(long)]
     json: bool,
 }
 
@@ -911,13 +879,8 @@ fn sweep(
     let max_bias = (3.0 * p.tolerances.edge_bias_nm).max(1.0);
     let mut bias = Vec::new();
     for d in [design, comparison] {
-        let name = match d {
-            CellDesign::Geometric(_) => "geometric",
-            CellDesign::Coupler(_) => "coupler",
-            CellDesign::Mzi(_) => "mzi",
-        };
         bias.push((
-            name,
+            d.kind().name(),
             sweep::bias_sweep(d, p, max_bias, 13).map_err(|e| e.to_string())?,
         ));
     }

@@ -27,6 +27,17 @@ pub enum CellKind {
     Mzi,
 }
 
+impl CellKind {
+    /// The name `--cell` and the reports use.
+    pub fn name(self) -> &'static str {
+        match self {
+            CellKind::Geometric => "geometric",
+            CellKind::Coupler => "coupler",
+            CellKind::Mzi => "mzi",
+        }
+    }
+}
+
 /// One designed cell with the process it was designed on.
 #[derive(Clone, Debug)]
 pub enum CellDesign {

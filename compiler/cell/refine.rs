@@ -135,7 +135,7 @@ pub fn integrate_design(
         let dr = path_detuning(ctx.beta_per_um, slope);
         super::integrate::three_guide_h(ctx.law.k_per_um(gu), ctx.law.k_per_um(gl), [dr, 0.0, dr])
     };
-    integrate_cell(&h, ctx.law.knots_nm(), d, tol, trusted_steps)
+    integrate_cell(&h, d, tol, trusted_steps)
 }
 
 /// The integration of a geometric cell's H: fourth-order Magnus on equal
@@ -146,12 +146,10 @@ pub fn integrate_design(
 /// equal steps; 900 us by the sixth-order method with a break at every
 /// crossing of the law's knots. The breaks restore the sixth order (1e-12
 /// in 186 steps) but the 68 segments they make put a floor under the step
-/// count that costs more than it saves at the tolerances cells need. The
-/// knots are passed for callers that need far tighter tolerances
-/// ([`integrate_cell_at_knots`]).
+/// count that costs more than it saves at the tolerances cells need; far
+/// tighter tolerances use [`integrate_cell_at_knots`].
 pub fn integrate_cell(
     h: &dyn Fn(f64) -> nalgebra::Matrix3<Complex64>,
-    _knots_nm: &[f64],
     d: &GeometricDesign,
     tol: f64,
     trusted_steps: Option<usize>,

@@ -141,17 +141,7 @@ pub fn respond(
                     ],
                 )
             };
-            // Break at the knots of the gaps as built (edge offsets taken
-            // at the cell centre; roughness moves them smoothly).
-            let mut built = d;
-            if let Some(r) = &e.rough {
-                let (dg, _) = r.at(d.length_um / 2.0);
-                built.gap_upper_nm += dg[0];
-                built.gap_lower_nm += dg[1];
-            }
-            let u =
-                refine::integrate_cell(&h, law.knots_nm(), &built, refine::INTEGRATION_TOL, None)?
-                    .matrix;
+            let u = refine::integrate_cell(&h, &d, refine::INTEGRATION_TOL, None)?.matrix;
             let leak = u[(1, 0)].norm_sqr().max(u[(1, 2)].norm_sqr());
             (super::geometric::rail_block(&u), leak)
         }
@@ -265,11 +255,6 @@ pub fn respond(
         split_error,
         leakage,
     })
-}
-
-/// The nominal rail block of a cell.
-pub fn nominal_block(cell: &CellDesign) -> DMatrix<Complex64> {
-    cell.rail_block()
 }
 
 /// One row of the sensitivity table: a source at one sigma of the process
@@ -472,7 +457,7 @@ pub fn table(
             },
         ),
     ];
-    let (n1, n2) = (nominal_block(cell), nominal_block(comparison));
+    let (n1, n2) = (cell.rail_block(), comparison.rail_block());
     let mut out: Vec<SensitivityRow> = rows
         .into_par_iter()
         .filter(|(_, _, e)| *e != Perturbation::default())
@@ -547,7 +532,7 @@ pub fn monte_carlo(
     seed: u64,
 ) -> Result<MonteCarlo, SensitivityError> {
     let t = &p.tolerances;
-    let nominal = nominal_block(cell);
+    let nominal = cell.rail_block();
     let samples = samples.max(1);
     let mut rs: Vec<Response> = (0..samples)
         .into_par_iter()
@@ -742,7 +727,7 @@ mod tests {
         // leakage grows about quadratically. Measured here so that a change
         // shows (figures in docs/physics.md).
         let (p, g, c) = both();
-        let (ng, nc) = (nominal_block(&g), nominal_block(&c));
+        let (ng, nc) = (g.rail_block(), c.rail_block());
         let at = |cell: &CellDesign, n: &DMatrix<Complex64>, d: f64| {
             respond(
                 cell,
@@ -778,7 +763,7 @@ mod tests {
         // block moves linearly with it.
         let (p, g, c) = both();
         for cell in [&g, &c] {
-            let n = nominal_block(cell);
+            let n = cell.rail_block();
             let e = |x: f64| {
                 respond(
                     cell,
@@ -804,7 +789,7 @@ mod tests {
         // geometric cell with the effective-index law at a 200 nm closer gap
         // about 0.7 % of loss-normalised fidelity. Shown, not hidden.
         let (p, g, _) = both();
-        let n = nominal_block(&g);
+        let n = g.rail_block();
         let r = respond(
             &g,
             &p,
@@ -884,7 +869,7 @@ mod tests {
         // re-integrated one to 3 % (the neglected term is second order).
         let (p, g, c) = both();
         for cell in [&g, &c] {
-            let n = nominal_block(cell);
+            let n = cell.rail_block();
             let e = Perturbation {
                 edge_bias_nm: 0.2 * p.tolerances.edge_bias_nm,
                 ..Default::default()
@@ -915,7 +900,7 @@ mod tests {
         let (dg, dw) = rough.at(0.0);
         let cst = rough.coupler_at(0.0);
         for cell in [&g, &c] {
-            let n = nominal_block(cell);
+            let n = cell.rail_block();
             let z = respond(
                 cell,
                 &p,
@@ -977,7 +962,7 @@ mod tests {
             edge_bias_nm: p.tolerances.edge_bias_nm,
             ..Default::default()
         };
-        let lin = first_order(&g, &p, &e, &nominal_block(&g))
+        let lin = first_order(&g, &p, &e, &g.rail_block())
             .unwrap()
             .split_error;
         let mc = monte_carlo(&g, &p, 48, 11).unwrap();
@@ -1010,7 +995,7 @@ mod tests {
             LengthRule::Shortest,
         )
         .unwrap();
-        let n = nominal_block(&m);
+        let n = m.rail_block();
         let at = |b: f64| {
             let e = Perturbation {
                 thickness_nm: b,

@@ -157,11 +157,7 @@ fn response(r: &crate::cell::sensitivity::Response) -> JsonResponse {
 }
 
 fn kind_name(cell: &CellDesign) -> &'static str {
-    match cell {
-        CellDesign::Geometric(_) => "geometric",
-        CellDesign::Coupler(_) => "coupler",
-        CellDesign::Mzi(_) => "mzi",
-    }
+    cell.kind().name()
 }
 
 /// Everything `trilane cell` shows.
