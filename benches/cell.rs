@@ -14,13 +14,12 @@ use trilane::cell::cache::DesignCache;
 use trilane::cell::geometric::LengthRule;
 use trilane::cell::refine::{self, CellContext};
 use trilane::optics::random::SplitMix64;
-use trilane::process::eim::EffectiveIndex;
 use trilane::process::law::characterise;
 use trilane::process::presets::preset;
 
 fn bench(c: &mut Criterion) {
     let p = preset("si220_wire").unwrap();
-    let ch = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+    let ch = characterise(&p).unwrap();
     let ctx = CellContext::of(&p, &ch, LengthRule::Shortest, 1e-3);
     let cell = refine::refine(std::f64::consts::FRAC_PI_4, &ctx).unwrap();
     let mut g = c.benchmark_group("cell_geometric_pi_over_4");

@@ -1,6 +1,7 @@
-//! Process characterisation by the effective index method: the whole
-//! `si220_wire` report (materials, mode figures, a 19-gap coupling table,
-//! fits, the three-guide check) and one two-guide supermode solve.
+//! Process characterisation: the whole `si220_wire` report (materials, mode
+//! figures, a 19-gap coupling table, fits, the three-guide check) from its
+//! shipped full-vector solution and by the effective index method, and one
+//! two-guide effective index solve.
 //! Run with `cargo bench --bench process`.
 
 use std::hint::black_box;
@@ -14,8 +15,12 @@ fn bench(c: &mut Criterion) {
     let p = preset("si220_wire").unwrap();
     let mut g = c.benchmark_group("process_si220_wire");
     g.sample_size(30);
-    g.bench_function("characterise", |b| {
-        b.iter(|| black_box(characterise(&p, &EffectiveIndex::TE_LIKE).unwrap()))
+    g.bench_function("characterise_shipped_full_vector", |b| {
+        b.iter(|| black_box(characterise(&p).unwrap()))
+    });
+    let rough = p.clone().with_model("effective_index");
+    g.bench_function("characterise_effective_index", |b| {
+        b.iter(|| black_box(characterise(&rough).unwrap()))
     });
     g.bench_function("coupling_at_200nm", |b| {
         b.iter(|| {

@@ -99,12 +99,27 @@ enum Command {
     ///
     /// PROCESS is a built-in preset (si220_wire, the default; sin400_strip;
     /// silica_plc) or a process file (.toml) that overrides a preset's
-    /// fields. The coupling law is computed by the process's waveguide model,
-    /// or fitted from a table.
+    /// fields. The coupling law comes from the full-vector mode solver (the
+    /// presets ship their solutions), the effective index method, or a
+    /// table.
     Process {
         /// A preset name or a process file
         #[arg(value_name = "PROCESS", default_value = "si220_wire")]
         target: String,
+        /// Compute the law with this model instead of the process's own:
+        /// `effective_index` is fast and rough, `full_vector` accurate
+        #[arg(long, value_enum)]
+        model: Option<ModelArg>,
+        /// Solve the process with the full-vector solver now (about a
+        /// minute) and print the difference from the law it uses; exits 1
+        /// when its full-vector solution is off by more than its stated
+        /// discretisation error
+        #[arg(long)]
+        solve: bool,
+        /// With --solve: write the fresh solution to this file, for a
+        /// process file to name (`[coupling] solved = "FILE.toml"`)
+        #[arg(long, value_name = "FILE.toml", requires = "solve")]
+        save: Option<PathBuf>,
         /// Fit this coupling table instead (CSV: `gap_nm,k_per_um` or
         /// `gap_nm,k_per_um@1550nm,k_per_um@1530nm,...`)
         #[arg(long, value_name = "FILE.csv")]
@@ -129,6 +144,23 @@ enum Command {
 }
 
 #[derive(Clone, Copy, clap::ValueEnum)]
+enum ModelArg {
+    #[value(name = "full_vector")]
+    FullVector,
+    #[value(name = "effective_index")]
+    EffectiveIndex,
+}
+
+impl ModelArg {
+    fn name(self) -> &'static str {
+        match self {
+            ModelArg::FullVector => trilane::process::solved::MODEL,
+            ModelArg::EffectiveIndex => "effective_index",
+        }
+    }
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
 enum CellKindArg {
     Geometric,
     Coupler,
@@ -148,6 +180,9 @@ const STACK_BYTES: usize = 256 << 20;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
+    trilane::process::solved::report_progress_to(Box::new(
+        trilane::report::progress::TerminalBar::stderr(),
+    ));
     let work = std::thread::Builder::new()
         .stack_size(STACK_BYTES)
         .spawn(move || match cli.command {
@@ -172,10 +207,21 @@ fn main() -> ExitCode {
             ),
             Command::Process {
                 target,
+                model,
+                solve,
+                save,
                 table,
                 plot,
                 json,
-            } => process(&target, table.as_deref(), plot.as_deref(), json),
+            } => process(ProcessArgs {
+                target: &target,
+                model,
+                solve,
+                save: save.as_deref(),
+                table: table.as_deref(),
+                plot: plot.as_deref(),
+                json,
+            }),
             Command::Cell(a) => cell(a),
         });
     let code = match work.map(|h| h.join()) {
@@ -605,7 +651,26 @@ fn load_process(target: &str) -> Result<trilane::process::spec::Process, u8> {
     })
 }
 
-fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) -> u8 {
+struct ProcessArgs<'a> {
+    target: &'a str,
+    model: Option<ModelArg>,
+    solve: bool,
+    save: Option<&'a Path>,
+    table: Option<&'a Path>,
+    plot: Option<&'a Path>,
+    json: bool,
+}
+
+fn process(a: ProcessArgs) -> u8 {
+    let ProcessArgs {
+        target,
+        model,
+        solve,
+        save,
+        table,
+        plot,
+        json,
+    } = a;
     use trilane::process::spec::CouplingSource;
     let mut p = match load_process(target) {
         Ok(p) => p,
@@ -637,10 +702,10 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
             }
         }
     }
-    let c = match trilane::process::law::characterise(
-        &p,
-        &trilane::process::eim::EffectiveIndex::TE_LIKE,
-    ) {
+    if let Some(m) = model {
+        p = p.with_model(m.name());
+    }
+    let c = match trilane::process::law::characterise(&p) {
         Ok(c) => c,
         Err(e) => {
             eprintln!("error: process {}: {e}", p.name);
@@ -660,6 +725,9 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
             return 2;
         }
     }
+    if solve {
+        return solve_process(&p, &c, save, json);
+    }
     let text = if json {
         let doc = trilane::report::process::to_json(&p, &c);
         serde_json::to_string_pretty(&doc).expect("the report serialises") + "\n"
@@ -667,6 +735,52 @@ fn process(target: &str, table: Option<&Path>, plot: Option<&Path>, json: bool) 
         trilane::report::process::to_text(&p, &c)
     };
     let _ = std::io::stdout().lock().write_all(text.as_bytes());
+    0
+}
+
+/// `process --solve`: a fresh full-vector solution against the law in use.
+fn solve_process(
+    p: &trilane::process::spec::Process,
+    c: &trilane::process::law::Characterisation,
+    save: Option<&Path>,
+    json: bool,
+) -> u8 {
+    use trilane::process::solved;
+    let gaps = c.law().table.gaps_nm.clone();
+    let req = solved::Request::standard(p, &gaps, p.coupling.g_ref_nm());
+    let bar = trilane::report::progress::TerminalBar::stderr();
+    let t = std::time::Instant::now();
+    let fresh = match solved::solve(&req, &bar) {
+        Ok(s) => s,
+        Err(e) => {
+            eprintln!(
+                "error: process {}: the full-vector solve failed: {e}",
+                p.name
+            );
+            return 1;
+        }
+    };
+    let seconds = t.elapsed().as_secs_f64();
+    let cmp = trilane::report::solve::compare(&p.name, c, &fresh, seconds);
+    if let Some(path) = save
+        && let Err(e) = write_atomically(path, fresh.to_toml().as_bytes())
+    {
+        eprintln!("error: cannot write {}: {}", path.display(), io_reason(&e));
+        return 2;
+    }
+    let text = if json {
+        serde_json::to_string_pretty(&cmp).expect("the comparison serialises") + "\n"
+    } else {
+        trilane::report::solve::to_text(&cmp, &fresh)
+    };
+    let _ = std::io::stdout().lock().write_all(text.as_bytes());
+    if cmp.passed == Some(false) {
+        eprintln!(
+            "error: the full-vector solution of {} differs from a fresh solve by more than its stated discretisation error; if the solver changed on purpose, write a new one with `trilane process {} --solve --save FILE.toml`",
+            p.name, p.name
+        );
+        return 1;
+    }
     0
 }
 
@@ -687,6 +801,10 @@ struct CellArgs {
     /// The process: a preset name or a process file
     #[arg(long, value_name = "NAME|FILE", default_value = "si220_wire")]
     process: String,
+    /// Compute the coupling law with this model instead of the process's
+    /// own (`effective_index`: fast and rough)
+    #[arg(long, value_enum)]
+    model: Option<ModelArg>,
     /// Cell kind
     #[arg(long = "cell", value_enum, default_value = "geometric")]
     kind: CellKindArg,
@@ -735,6 +853,9 @@ fn cell(a: CellArgs) -> u8 {
         Ok(p) => p,
         Err(code) => return code,
     };
+    if let Some(m) = a.model {
+        p = p.with_model(m.name());
+    }
     if let Some(w) = a.width.iter().find(|w| !(w.is_finite() && **w > 0.0)) {
         eprintln!("error: --width takes guide widths in nm, each above 0, got {w}");
         return 2;

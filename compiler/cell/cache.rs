@@ -109,7 +109,6 @@ impl<'a> DesignCache<'a> {
 mod tests {
     use super::*;
     use crate::cell::geometric::LengthRule;
-    use crate::process::eim::EffectiveIndex;
     use crate::process::law::characterise;
     use crate::process::presets::preset;
 
@@ -119,7 +118,7 @@ mod tests {
         // same geometry as a fresh refinement (both solve the same two
         // equations; they agree to the size of the targets' slack).
         let p = preset("si220_wire").unwrap();
-        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let c = characterise(&p).unwrap();
         let ctx = CellContext::of(&p, &c, LengthRule::Shortest, 1e-3);
         let cache = DesignCache::build(&ctx, 24).unwrap();
         for theta in [0.05, 0.333, 0.9, 1.234, 1.5] {

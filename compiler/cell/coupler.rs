@@ -162,7 +162,6 @@ pub fn design(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::process::eim::EffectiveIndex;
     use crate::process::law::characterise;
     use crate::process::presets::preset;
 
@@ -171,7 +170,7 @@ mod tests {
         // Yariv (1973): cross power sin^2(int k dz); the bends add about
         // k(g) sqrt(pi R g_c) (Gaussian integral of the exponential law).
         let p = preset("si220_wire").unwrap();
-        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let c = characterise(&p).unwrap();
         let law = c.law();
         for theta in [
             0.3,

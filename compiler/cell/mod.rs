@@ -15,7 +15,6 @@ pub mod roughness;
 pub mod sensitivity;
 pub mod sweep;
 
-use crate::process::eim::{EffectiveIndex, WaveguideModel};
 use crate::process::law::{Characterisation, ProcessError, characterise};
 use crate::process::spec::Process;
 
@@ -92,16 +91,15 @@ impl From<sensitivity::SensitivityError> for DesignError {
 /// The residual coupling at a geometric cell's ends, relative to its peak.
 pub const DEFAULT_RESIDUAL: f64 = 1e-3;
 
-/// Designs one cell of split `theta` on `process` (its law from the
-/// effective index method or its table).
+/// Designs one cell of split `theta` on `process` (its law from the model
+/// or table the process names).
 pub fn design(
     kind: CellKind,
     theta: f64,
     process: &Process,
     rule: geometric::LengthRule,
 ) -> Result<(CellDesign, Characterisation), DesignError> {
-    let model = EffectiveIndex::TE_LIKE;
-    let c = characterise(process, &model as &dyn WaveguideModel)?;
+    let c = characterise(process)?;
     let law = c.law();
     let cell = match kind {
         CellKind::Geometric => {

@@ -96,7 +96,6 @@ pub fn design(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::process::eim::EffectiveIndex;
     use crate::process::law::characterise;
     use crate::process::presets::preset;
 
@@ -106,7 +105,7 @@ mod tests {
         // 50:50 couplers, so phi = pi - 2 theta; the refined couplers are
         // 50:50 to 1e-9, so the solved phase is that to about 1e-4.
         let p = preset("si220_wire").unwrap();
-        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let c = characterise(&p).unwrap();
         let law = c.law();
         for theta in [0.2, std::f64::consts::FRAC_PI_4, 1.4] {
             let d = design(theta, &law.smooth, &law.fit, 200.0, 5.0, 100.0).unwrap();

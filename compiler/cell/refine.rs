@@ -412,7 +412,6 @@ fn solve(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::process::eim::EffectiveIndex;
     use crate::process::law::characterise;
     use crate::process::presets::preset;
 
@@ -423,7 +422,7 @@ mod tests {
         // refined design reaches 1e-6 in split and leakage for theta across
         // (0, pi/2]. Curve: si220_wire by the effective index method.
         let p = preset("si220_wire").unwrap();
-        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let c = characterise(&p).unwrap();
         let ctx = CellContext::of(&p, &c, LengthRule::Shortest, 1e-3);
         let mut worst_analytic: f64 = 0.0;
         for theta in [0.05, 0.3, std::f64::consts::FRAC_PI_4, 1.2, 1.45, 1.55] {
@@ -484,7 +483,7 @@ mod tests {
         // On the silica process the refinement pulls the closer gap in; the
         // design must still respect the process's minimum gap.
         let p = preset("silica_plc").unwrap();
-        let c = characterise(&p, &EffectiveIndex::TE_LIKE).unwrap();
+        let c = characterise(&p).unwrap();
         let ctx = CellContext::of(&p, &c, LengthRule::Shortest, 1e-3);
         for theta in [0.5, 1.2] {
             let cell = refine(theta, &ctx).unwrap();

@@ -29,7 +29,6 @@ use super::geometric::CellError;
 use super::roughness::RoughEdges;
 use super::{CellDesign, coupler, refine};
 use crate::optics::random::SplitMix64;
-use crate::process::eim::{self, EffectiveIndex};
 use crate::process::law::{ProcessError, characterise};
 use crate::process::spec::Process;
 use nalgebra::DMatrix;
@@ -106,14 +105,9 @@ pub fn respond(
     nominal: &DMatrix<Complex64>,
 ) -> Result<Response, SensitivityError> {
     let q = perturbed_process(p, e);
-    let c = characterise(&q, &EffectiveIndex::TE_LIKE)?;
+    let c = characterise(&q)?;
     let law = &c.law().smooth;
-    let fig = eim::mode_figures(
-        &EffectiveIndex::TE_LIKE,
-        &q.film,
-        q.width_nm * 1e-3,
-        q.wavelength_um,
-    )?;
+    let fig = c.mode.clone().expect("a characterisation has mode figures");
     let k0 = 2.0 * std::f64::consts::PI / q.wavelength_um;
     let detune = |dw: f64| k0 * fig.dneff_dw_per_nm * dw;
     let [wu, wm, wl] = e.width_nm;
@@ -622,14 +616,20 @@ mod tests {
     use crate::process::presets::preset;
     use std::f64::consts::FRAC_PI_4;
 
-    fn both() -> (Process, CellDesign, CellDesign) {
-        let p = preset("si220_wire").unwrap();
+    /// The pi/4 cell and coupler of si220_wire at a 200 nm closer gap, on
+    /// the law of `model`.
+    fn both_on(model: &str) -> (Process, CellDesign, CellDesign) {
+        let p = preset("si220_wire").unwrap().with_model(model);
         let mut q = p.clone();
         // checks.md's example: the closer gap at 200 nm.
         q.rules.min_gap_nm = 200.0;
         let (g, _) = design(CellKind::Geometric, FRAC_PI_4, &q, LengthRule::Shortest).unwrap();
         let (c, _) = design(CellKind::Coupler, FRAC_PI_4, &q, LengthRule::Shortest).unwrap();
         (q, g, c)
+    }
+
+    fn both() -> (Process, CellDesign, CellDesign) {
+        both_on("full_vector")
     }
 
     #[test]
@@ -716,22 +716,12 @@ mod tests {
         assert!((2.5..6.0).contains(&ratio(10.0)), "10 nm: {}", ratio(10.0));
     }
 
-    #[test]
-    fn an_edge_bias_on_real_guides_still_favours_the_geometric_cell() {
-        // An edge bias also widens the guides, and a wider silicon wire
-        // couples less and with a slightly different decay length, so on
-        // the effective-index law of a real 500 x 220 nm wire the ratio
-        // k_u/k_l moves to first order too: the cell's split error under a
-        // 10 nm gap change is about half the coupler's, not the tenth the
-        // pure gap bias above gives. Its fidelity stays 3x better and its
-        // leakage grows about quadratically. Measured here so that a change
-        // shows (figures in docs/physics.md).
-        let (p, g, c) = both();
+    fn edge_bias_responses(p: &Process, g: &CellDesign, c: &CellDesign) -> [[Response; 2]; 2] {
         let (ng, nc) = (g.rail_block(), c.rail_block());
         let at = |cell: &CellDesign, n: &DMatrix<Complex64>, d: f64| {
             respond(
                 cell,
-                &p,
+                p,
                 &Perturbation {
                     edge_bias_nm: d / 2.0,
                     ..Default::default()
@@ -740,8 +730,24 @@ mod tests {
             )
             .unwrap()
         };
-        let (g5, g10) = (at(&g, &ng, 5.0), at(&g, &ng, 10.0));
-        let (c5, c10) = (at(&c, &nc, 5.0), at(&c, &nc, 10.0));
+        [
+            [at(g, &ng, 5.0), at(g, &ng, 10.0)],
+            [at(c, &nc, 5.0), at(c, &nc, 10.0)],
+        ]
+    }
+
+    #[test]
+    fn an_edge_bias_on_the_effective_index_law_favours_the_geometric_cell() {
+        // An edge bias also widens the guides, and a wider silicon wire
+        // couples less and with a slightly different decay length, so the
+        // ratio k_u/k_l moves to first order too. On the effective index
+        // method's law of a 500 x 220 nm wire the cell's split error under
+        // a 10 nm gap change is about half the coupler's, not the tenth the
+        // pure gap bias above gives; its fidelity is 3x better and its
+        // leakage grows about quadratically. Measured here so that a change
+        // shows (figures in docs/physics.md).
+        let (p, g, c) = both_on("effective_index");
+        let [[g5, g10], [c5, c10]] = edge_bias_responses(&p, &g, &c);
         assert!(
             g10.split_error.abs() < 0.8 * c10.split_error.abs(),
             "{} vs {}",
@@ -757,10 +763,34 @@ mod tests {
     }
 
     #[test]
+    fn an_edge_bias_on_the_full_vector_law_nearly_cancels_in_the_coupling() {
+        // On the full-vector law of the 500 x 220 nm wire a wider guide
+        // couples less by nearly what the narrower gap adds: at 200 nm,
+        // d ln k / dw = -8.3e-3 per nm (this solver's stencil) against
+        // 1 / (local decay length) = 8.9e-3 per nm, so an edge bias d
+        // (width +2d, gap -2d) moves ln k by only 2d x 0.6e-3. The coupler's
+        // split error at a 10 nm gap change is therefore about 0.6 % rather
+        // than the effective-index law's 1.1 %, and the cell's, which comes
+        // from the change of k_u / k_l, is as large: neither kind gains on
+        // the raw split. The cell keeps its pulse area (leakage below
+        // 1e-4). Measured here so that a change shows (docs/physics.md).
+        let (p, g, c) = both();
+        let [[g5, g10], [c5, c10]] = edge_bias_responses(&p, &g, &c);
+        let ratio = g10.split_error.abs() / c10.split_error.abs();
+        assert!((0.5..2.0).contains(&ratio), "cell / coupler {ratio}");
+        assert!(c10.split_error.abs() < 0.009, "{}", c10.split_error);
+        assert!(g10.leakage < 1e-4 && g5.leakage < g10.leakage);
+        let rc = c10.split_error.abs() / c5.split_error.abs();
+        assert!((1.8..2.6).contains(&rc), "coupler ratio {rc}");
+    }
+
+    #[test]
     fn one_sided_errors_are_first_order_for_both() {
         // physics.md: a gap error on one side changes the coupling ratio,
         // hence theta, to first order (and detunes that rail): the rail
-        // block moves linearly with it.
+        // block moves linearly with it. Small errors: the rail's detuning
+        // over a 200 um cell is about a radian per nm, beyond which the
+        // deviation's chord bends.
         let (p, g, c) = both();
         for cell in [&g, &c] {
             let n = cell.rail_block();
@@ -777,8 +807,8 @@ mod tests {
                 .unwrap()
                 .deviation
             };
-            let r = e(2.0) / e(1.0);
-            assert!((1.7..2.3).contains(&r), "ratio {r}");
+            let r = e(0.2) / e(0.1);
+            assert!((1.8..2.2).contains(&r), "ratio {r}");
         }
     }
 
@@ -787,21 +817,28 @@ mod tests {
         // checks.md / physics.md (computed independently): 1 nm of width
         // error on the auxiliary guide alone detunes it and costs a pi/4
         // geometric cell with the effective-index law at a 200 nm closer gap
-        // about 0.7 % of loss-normalised fidelity. Shown, not hidden.
-        let (p, g, _) = both();
-        let n = g.rail_block();
-        let r = respond(
-            &g,
-            &p,
-            &Perturbation {
-                width_nm: [0.0, 1.0, 0.0],
-                ..Default::default()
-            },
-            &n,
-        )
-        .unwrap();
-        let infidelity = 1.0 - r.fidelity;
-        assert!((0.003..0.015).contains(&infidelity), "1 - F = {infidelity}");
+        // about 0.7 % of loss-normalised fidelity (0.5 % measured here). On
+        // the full-vector law the cell is 1.5x longer (weaker coupling), so
+        // the same detuning costs more: 1.7 % measured. Shown, not hidden.
+        for (model, range) in [
+            ("effective_index", 0.003..0.015),
+            ("full_vector", 0.01..0.03),
+        ] {
+            let (p, g, _) = both_on(model);
+            let n = g.rail_block();
+            let r = respond(
+                &g,
+                &p,
+                &Perturbation {
+                    width_nm: [0.0, 1.0, 0.0],
+                    ..Default::default()
+                },
+                &n,
+            )
+            .unwrap();
+            let infidelity = 1.0 - r.fidelity;
+            assert!(range.contains(&infidelity), "{model}: 1 - F = {infidelity}");
+        }
     }
 
     #[test]

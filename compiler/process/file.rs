@@ -14,7 +14,8 @@
 //! ```
 
 use super::presets;
-use super::spec::{CouplingSource, MATERIAL_NAMES, Process, material_by_name};
+use super::solved;
+use super::spec::{CouplingSource, MATERIAL_NAMES, MODEL_NAMES, Process, material_by_name};
 use super::table;
 use crate::circuit::FileLoader;
 use crate::circuit::suggest::nearest;
@@ -108,6 +109,7 @@ struct RawTolerances {
 struct RawCoupling {
     model: Text,
     table: Text,
+    solved: Text,
     gaps_nm: Option<Spanned<Vec<f64>>>,
     g_ref_nm: Num,
 }
@@ -421,19 +423,34 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
     if let Some(c) = &raw.coupling {
         let mut g_ref = p.coupling.g_ref_nm();
         r.num(&mut g_ref, &c.g_ref_nm, "g_ref_nm", Need::Positive, 1.0);
-        if let (Some(m), Some(t)) = (&c.model, &c.table) {
+        let given: Vec<(&str, &Spanned<String>)> = [
+            ("model", &c.model),
+            ("table", &c.table),
+            ("solved", &c.solved),
+        ]
+        .into_iter()
+        .filter_map(|(k, v)| v.as_ref().map(|v| (k, v)))
+        .collect();
+        if given.len() > 1 {
             r.diags.push(
                 Diagnostic::error(
                     "process-value",
-                    "give either `model` or `table`, not both",
-                    span(t.span()),
+                    format!(
+                        "give one source of the coupling law, not {}",
+                        given
+                            .iter()
+                            .map(|(k, _)| format!("`{k}`"))
+                            .collect::<Vec<_>>()
+                            .join(" and ")
+                    ),
+                    span(given[1].1.span()),
                     "second source",
                 )
-                .with_label(span(m.span()), "first source"),
+                .with_label(span(given[0].1.span()), "first source"),
             );
         }
         if let Some(m) = &c.model
-            && m.get_ref() != "effective_index"
+            && !MODEL_NAMES.contains(&m.get_ref().as_str())
         {
             r.diags.push(
                 Diagnostic::error(
@@ -442,7 +459,16 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
                     span(m.span()),
                     "unknown model",
                 )
-                .with_hint("models: effective_index (or give a measured `table`)"),
+                .with_hint(match nearest(m.get_ref(), MODEL_NAMES) {
+                    Some(n) => format!(
+                        "did you mean `{n}`? models: {} (or give a measured `table`)",
+                        MODEL_NAMES.join(", ")
+                    ),
+                    None => format!(
+                        "models: {} (or give a measured `table`)",
+                        MODEL_NAMES.join(", ")
+                    ),
+                }),
             );
         }
         if let Some(t) = &c.table {
@@ -470,6 +496,38 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
                     "cannot read",
                 )),
             }
+        } else if let Some(f) = &c.solved {
+            match files.load(f.get_ref()).map_err(|why| format!("cannot read the solution: {why}")).and_then(|text| {
+                solved::Solution::parse(&text).map_err(|e| e.to_string())
+            }) {
+                Ok(solution) => match solution.covers(&p) {
+                    Ok(()) => {
+                        if c.gaps_nm.is_some() {
+                            r.diags.push(Diagnostic::error(
+                                "process-value",
+                                "a solution brings its own gaps",
+                                span(f.span()),
+                                "has its gaps",
+                            ).with_hint("remove `gaps_nm`, or solve again at those gaps (`model = \"full_vector\"`)"));
+                        }
+                        p.coupling = CouplingSource::Solved {
+                            solution: std::sync::Arc::new(solution),
+                            g_ref_nm: g_ref,
+                            from: f.get_ref().clone(),
+                        }
+                    }
+                    Err(e) => r.diags.push(
+                        Diagnostic::error("process-value", e.to_string(), span(f.span()), "does not fit this process")
+                            .with_hint("solve this process and save it: `trilane process FILE --solve --save TABLE.toml`"),
+                    ),
+                },
+                Err(why) => r.diags.push(Diagnostic::error(
+                    "file",
+                    why,
+                    span(f.span()),
+                    "cannot use",
+                )),
+            }
         } else {
             let gaps = match &c.gaps_nm {
                 Some(g) => {
@@ -487,16 +545,36 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
                     }
                     v
                 }
+                None => p
+                    .coupling
+                    .gaps_nm()
+                    .expect("presets compute their law")
+                    .to_vec(),
+            };
+            let model = match &c.model {
+                Some(m) => m.get_ref().clone(),
                 None => match &p.coupling {
-                    CouplingSource::Model { gaps_nm, .. } => gaps_nm.clone(),
-                    CouplingSource::Table { .. } => unreachable!("presets compute their law"),
+                    CouplingSource::Model { model, .. } => model.clone(),
+                    _ => solved::MODEL.to_owned(),
                 },
             };
-            p.coupling = CouplingSource::Model {
-                model: "effective_index".into(),
-                gaps_nm: gaps,
-                g_ref_nm: g_ref,
-            };
+            // The base's shipped solution serves when nothing it depends
+            // on changed.
+            let same_gaps = p.coupling.gaps_nm() == Some(gaps.as_slice());
+            let keep = model == solved::MODEL
+                && same_gaps
+                && matches!(p.coupling, CouplingSource::Solved { .. });
+            if keep {
+                if let CouplingSource::Solved { g_ref_nm, .. } = &mut p.coupling {
+                    *g_ref_nm = g_ref;
+                }
+            } else {
+                p.coupling = CouplingSource::Model {
+                    model,
+                    gaps_nm: gaps,
+                    g_ref_nm: g_ref,
+                };
+            }
         }
     }
     if !r.set.is_empty() {

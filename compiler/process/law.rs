@@ -4,8 +4,10 @@
 use super::coupling::{CouplingError, CouplingTable, ExponentialFit, SmoothLaw, exponential_fit};
 use super::eim::{self, EffectiveIndex, ModeFigures, SolverError, Strips, WaveguideModel};
 use super::material::Material;
+use super::solved::{self, Solution, SolvedError};
 use super::spec::{CouplingSource, Process};
 use rayon::prelude::*;
+use std::sync::Arc;
 
 #[derive(Clone, Debug, PartialEq)]
 pub struct MaterialReport {
@@ -35,7 +37,8 @@ pub struct ThreeGuideCheck {
 
 #[derive(Clone, Debug, PartialEq)]
 pub struct Characterisation {
-    /// Which model produced the law: `effective_index`, or `table`.
+    /// Which model produced the law: `full_vector`, `effective_index`, or
+    /// `table`.
     pub model: String,
     pub wavelength_um: f64,
     pub materials: Vec<MaterialReport>,
@@ -44,12 +47,16 @@ pub struct Characterisation {
     /// Figures of one strip of the process width, by the model (also when
     /// the coupling law comes from a table).
     pub mode: Option<ModeFigures>,
-    /// The TM-like fundamental mode's index by the effective index method
-    /// (none when the strip guides no TM-like mode).
+    /// The TM-like fundamental mode's index, by the full-vector solution or
+    /// else the effective index method (none when the strip guides no
+    /// TM-like mode).
     pub tm_like_neff: Option<f64>,
     pub three_guides: Option<ThreeGuideCheck>,
     /// One law per wavelength, the design wavelength first.
     pub laws: Vec<LawAtWavelength>,
+    /// The full-vector solution the law and the mode figures come from,
+    /// with its grid and discretisation errors.
+    pub solution: Option<Arc<Solution>>,
 }
 
 impl Characterisation {
@@ -65,18 +72,19 @@ pub enum ProcessError {
     Solver(#[from] SolverError),
     #[error("coupling law: {0}")]
     Coupling(#[from] CouplingError),
+    #[error(transparent)]
+    Solved(#[from] SolvedError),
     #[error(
         "the coupling table has no column at the process wavelength {want_nm} nm (it has {have}); add one, or set the process's wavelength_nm"
     )]
     NoTableAtWavelength { want_nm: f64, have: String },
 }
 
-/// Characterises a process with `model` (used for the mode figures and,
-/// when the process says so, the coupling table).
-pub fn characterise(
-    process: &Process,
-    model: &dyn WaveguideModel,
-) -> Result<Characterisation, ProcessError> {
+/// Characterises a process by the model its coupling source names: the
+/// effective index method, the full-vector solver (a shipped or saved
+/// solution, or one solved now), or a table (mode figures then by the
+/// effective index method).
+pub fn characterise(process: &Process) -> Result<Characterisation, ProcessError> {
     let l = process.wavelength_um;
     let film = &process.film;
     let materials = [
@@ -95,29 +103,56 @@ pub fn characterise(
     })
     .collect::<Result<Vec<_>, ProcessError>>()?;
     let width_um = process.width_nm * 1e-3;
-    let mode = eim::mode_figures(model, film, width_um, l)?;
+    let eim = EffectiveIndex::TE_LIKE;
     let film_index = Some(EffectiveIndex::film_index(film, l)?);
-    let tm_like_neff = EffectiveIndex::TM_LIKE
-        .supermodes(film, &Strips::single(width_um), l)
-        .ok()
-        .map(|m| m[0]);
     let g_ref = process.coupling.g_ref_nm();
-    let (model_name, tables) = match &process.coupling {
-        CouplingSource::Model { gaps_nm, .. } => {
-            let k: Vec<f64> = gaps_nm
-                .par_iter()
-                .map(|g| eim::coupling_per_um(model, film, width_um, g * 1e-3, l))
-                .collect::<Result<_, _>>()?;
-            (
-                model.name().to_owned(),
-                vec![CouplingTable {
-                    wavelength_um: l,
-                    gaps_nm: gaps_nm.clone(),
-                    k_per_um: k,
-                }],
-            )
+    // A full-vector law: the named solution, or one that covers the
+    // process (from earlier in this run, or solved now).
+    let solution = match &process.coupling {
+        CouplingSource::Solved { solution, from, .. } => match solution.covers(process) {
+            Ok(()) => Some(Arc::clone(solution)),
+            // A preset's shipped solution does not reach a guide a process
+            // file changed much: solve that guide instead.
+            Err(_) if from == "preset" => {
+                Some(solved::covering(process, &solution.gaps_nm, g_ref)?)
+            }
+            Err(e) => return Err(e.into()),
+        },
+        CouplingSource::Model { model, gaps_nm, .. } if model == solved::MODEL => {
+            Some(solved::covering(process, gaps_nm, g_ref)?)
         }
-        CouplingSource::Table { tables, .. } => {
+        _ => None,
+    };
+    let local = match &solution {
+        Some(s) => Some(s.at(process)?),
+        None => None,
+    };
+    let tm_like_neff = match &solution {
+        Some(s) => s.tm_like_neff.map(|e| e.value),
+        None => EffectiveIndex::TM_LIKE
+            .supermodes(film, &Strips::single(width_um), l)
+            .ok()
+            .map(|m| m[0]),
+    };
+    let mode = match &local {
+        Some(x) => ModeFigures {
+            neff: x.neff,
+            group_index: x.group_index,
+            dneff_dw_per_nm: x.dneff_dw_per_nm,
+            dneff_dt_per_nm: x.dneff_dt_per_nm,
+        },
+        None => eim::mode_figures(&eim, film, width_um, l)?,
+    };
+    let (model_name, tables) = match (&process.coupling, &solution, &local) {
+        (_, Some(s), Some(x)) => (
+            solved::MODEL.to_owned(),
+            vec![CouplingTable {
+                wavelength_um: l,
+                gaps_nm: s.gaps_nm.clone(),
+                k_per_um: x.k_per_um.clone(),
+            }],
+        ),
+        (CouplingSource::Table { tables, .. }, _, _) => {
             // The law at the process wavelength comes first; a table without
             // it is refused rather than read at the wrong wavelength.
             let mut t = tables.clone();
@@ -136,6 +171,21 @@ pub fn characterise(
             t.insert(0, first);
             ("table".to_owned(), t)
         }
+        (CouplingSource::Model { gaps_nm, .. }, _, _) => {
+            let k: Vec<f64> = gaps_nm
+                .par_iter()
+                .map(|g| eim::coupling_per_um(&eim, film, width_um, g * 1e-3, l))
+                .collect::<Result<_, _>>()?;
+            (
+                eim.name().to_owned(),
+                vec![CouplingTable {
+                    wavelength_um: l,
+                    gaps_nm: gaps_nm.clone(),
+                    k_per_um: k,
+                }],
+            )
+        }
+        (CouplingSource::Solved { .. }, _, _) => unreachable!("a solved source has a solution"),
     };
     let laws = tables
         .into_iter()
@@ -148,18 +198,25 @@ pub fn characterise(
         })
         .collect::<Result<Vec<_>, ProcessError>>()?;
     // A model check: coupled-mode theory against the model's own three-guide
-    // supermodes. A table has no three-guide data, so it gets none.
-    let three_guides = if matches!(process.coupling, CouplingSource::Table { .. }) {
-        None
-    } else {
-        let g = g_ref * 1e-3;
-        let k_pair = eim::coupling_per_um(model, film, width_um, g, l)?;
-        let m3 = model.supermodes(film, &Strips::triple(width_um, g), l)?;
-        Some(ThreeGuideCheck {
-            gap_nm: g_ref,
-            k_pair_per_um: k_pair,
-            half_outer_splitting_per_um: std::f64::consts::PI * (m3[0] - m3[2]) / l,
-        })
+    // supermodes (the solution's, at its nominal guide). A table has no
+    // three-guide data, so it gets none.
+    let three_guides = match (&process.coupling, &solution) {
+        (_, Some(s)) => s.three_guides.map(|t| ThreeGuideCheck {
+            gap_nm: t.gap_nm,
+            k_pair_per_um: s.nominal_k_per_um(t.gap_nm),
+            half_outer_splitting_per_um: t.half_outer_splitting_per_um.value,
+        }),
+        (CouplingSource::Table { .. }, _) => None,
+        _ => {
+            let g = g_ref * 1e-3;
+            let k_pair = eim::coupling_per_um(&eim, film, width_um, g, l)?;
+            let m3 = eim.supermodes(film, &Strips::triple(width_um, g), l)?;
+            Some(ThreeGuideCheck {
+                gap_nm: g_ref,
+                k_pair_per_um: k_pair,
+                half_outer_splitting_per_um: std::f64::consts::PI * (m3[0] - m3[2]) / l,
+            })
+        }
     };
     Ok(Characterisation {
         model: model_name,
@@ -170,6 +227,7 @@ pub fn characterise(
         tm_like_neff,
         three_guides,
         laws,
+        solution,
     })
 }
 
@@ -182,7 +240,7 @@ mod tests {
     fn every_preset_characterises() {
         for name in crate::process::presets::NAMES {
             let p = preset(name).unwrap();
-            let c = characterise(&p, &EffectiveIndex::TE_LIKE)
+            let c = characterise(&p.with_model("effective_index"))
                 .unwrap_or_else(|e| panic!("{name}: {e}"));
             let law = c.law();
             assert!(law.fit.fit_rms < 0.1, "{name}: rms {}", law.fit.fit_rms);
@@ -197,7 +255,7 @@ mod tests {
     fn silicon_wire_decay_length() {
         // checks.md: the effective index method's decay is about 119 nm; the
         // issue pins 110-125 nm for this method.
-        let c = characterise(&preset("si220_wire").unwrap(), &EffectiveIndex::TE_LIKE).unwrap();
+        let c = characterise(&preset("si220_wire").unwrap().with_model("effective_index")).unwrap();
         let g_c = c.law().fit.g_c_nm;
         assert!((110.0..=125.0).contains(&g_c), "{g_c}");
         for g in [150.0, 200.0, 300.0] {

@@ -8,6 +8,7 @@ pub mod law;
 pub mod material;
 pub mod presets;
 pub mod slab;
+pub mod solved;
 pub mod spec;
 pub mod table;
 pub mod vector;

@@ -1,7 +1,8 @@
 //! The built-in processes. Each value has its source beside it: a paper,
 //! "from memory" (a typical figure of the trade, not confirmed in print), or
-//! "common practice" (a rule of thumb). Couplings are never stored here:
-//! the waveguide model computes them from the guide.
+//! "common practice" (a rule of thumb). Couplings are never typed in here:
+//! each preset's law is the full-vector solver's, solved ahead of time
+//! (`solved/NAME.toml`, recomputed by `trilane process NAME --solve`).
 
 use super::eim::Film;
 use super::material::Material;
@@ -24,9 +25,13 @@ pub fn preset(name: &str) -> Option<Process> {
     })
 }
 
-fn gaps(from: f64, to: f64, step: f64) -> Vec<f64> {
-    let n = ((to - from) / step).round() as usize;
-    (0..=n).map(|i| from + step * i as f64).collect()
+/// The preset's shipped full-vector solution (its gaps are the solution's).
+fn solved(name: &str, g_ref_nm: f64) -> CouplingSource {
+    CouplingSource::Solved {
+        solution: super::solved::shipped(name).expect("every preset ships a solution"),
+        g_ref_nm,
+        from: "preset".into(),
+    }
 }
 
 /// 220 nm silicon strip guides in oxide, 193 nm lithography.
@@ -72,11 +77,7 @@ fn si220_wire() -> Process {
             phase_rad: 0.01,
             wavelength_nm: 0.0,
         },
-        coupling: CouplingSource::Model {
-            model: "effective_index".into(),
-            gaps_nm: gaps(100.0, 1000.0, 50.0),
-            g_ref_nm: 200.0,
-        },
+        coupling: solved("si220_wire", 200.0),
         sources: vec![
             src(
                 "geometry",
@@ -163,11 +164,7 @@ fn sin400_strip() -> Process {
             phase_rad: 0.01,
             wavelength_nm: 0.0,
         },
-        coupling: CouplingSource::Model {
-            model: "effective_index".into(),
-            gaps_nm: gaps(200.0, 2000.0, 100.0),
-            g_ref_nm: 500.0,
-        },
+        coupling: solved("sin400_strip", 500.0),
         sources: vec![
             src("material", "Luke et al. 2015 (Si3N4), Malitson 1965 (SiO2)"),
             src(
@@ -223,11 +220,7 @@ fn silica_plc() -> Process {
             phase_rad: 0.01,
             wavelength_nm: 0.0,
         },
-        coupling: CouplingSource::Model {
-            model: "effective_index".into(),
-            gaps_nm: gaps(1500.0, 12000.0, 750.0),
-            g_ref_nm: 4000.0,
-        },
+        coupling: solved("silica_plc", 4000.0),
         sources: vec![
             src(
                 "material",

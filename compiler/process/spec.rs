@@ -6,6 +6,8 @@
 use super::coupling::CouplingTable;
 use super::eim::Film;
 use super::material::Material;
+use super::solved::Solution;
+use std::sync::Arc;
 
 #[derive(Clone, Debug, PartialEq)]
 pub struct Process {
@@ -102,15 +104,55 @@ pub enum CouplingSource {
         /// Where it was read from.
         from: String,
     },
+    /// A full-vector solution computed ahead of time ([`super::solved`]):
+    /// the presets ship theirs; a process file may name a saved one.
+    Solved {
+        solution: Arc<Solution>,
+        g_ref_nm: f64,
+        /// `preset` for a shipped solution, else the file it was read from.
+        from: String,
+    },
 }
 
 impl CouplingSource {
     pub fn g_ref_nm(&self) -> f64 {
         match self {
-            CouplingSource::Model { g_ref_nm, .. } | CouplingSource::Table { g_ref_nm, .. } => {
-                *g_ref_nm
-            }
+            CouplingSource::Model { g_ref_nm, .. }
+            | CouplingSource::Table { g_ref_nm, .. }
+            | CouplingSource::Solved { g_ref_nm, .. } => *g_ref_nm,
         }
+    }
+
+    /// The gaps a model or a solution computes the law at (none for a
+    /// table, whose gaps are its own).
+    pub fn gaps_nm(&self) -> Option<&[f64]> {
+        match self {
+            CouplingSource::Model { gaps_nm, .. } => Some(gaps_nm),
+            CouplingSource::Solved { solution, .. } => Some(&solution.gaps_nm),
+            CouplingSource::Table { .. } => None,
+        }
+    }
+}
+
+/// The waveguide models a process may name.
+pub const MODEL_NAMES: [&str; 2] = [super::solved::MODEL, "effective_index"];
+
+impl Process {
+    /// The same process with its law computed by `model` (a name of
+    /// [`MODEL_NAMES`]) over the gaps it has; a table-based process keeps
+    /// its table.
+    pub fn with_model(mut self, model: &str) -> Process {
+        if model == super::solved::MODEL && matches!(self.coupling, CouplingSource::Solved { .. }) {
+            return self;
+        }
+        if let Some(gaps) = self.coupling.gaps_nm() {
+            self.coupling = CouplingSource::Model {
+                model: model.to_owned(),
+                gaps_nm: gaps.to_vec(),
+                g_ref_nm: self.coupling.g_ref_nm(),
+            };
+        }
+        self
     }
 }
 

@@ -5,7 +5,9 @@
 pub mod cell;
 pub mod cell_sweep;
 pub mod process;
+pub mod progress;
 pub mod simulate;
+pub mod solve;
 
 use crate::diagnostic::Diagnostic;
 use crate::source::Source;

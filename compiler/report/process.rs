@@ -15,6 +15,12 @@ pub fn model_note(model: &str) -> &'static str {
              coupling, by about half at a 200 nm gap, so cells designed on it are too short on \
              real silicon; a full-vector solver is the accurate model"
         }
+        "full_vector" => {
+            "full-vector finite-difference mode solver (Yee-cell transverse magnetic field, Zhu & \
+             Brown 2002; Fallahkhair, Li & Murphy 2008), extrapolated over two nested grids \
+             (Richardson); the error column is that extrapolation's estimate of the \
+             discretisation error"
+        }
         "table" => "a measured or simulated table, fitted as given",
         _ => "",
     }
@@ -39,6 +45,8 @@ pub struct JsonProcess {
     pub dneff_dw_per_nm: Option<f64>,
     pub dneff_dt_per_nm: Option<f64>,
     pub coupling: JsonCoupling,
+    /// The full-vector solution behind the law, when there is one.
+    pub solution: Option<JsonSolution>,
     pub three_guides: Option<JsonThreeGuides>,
     pub rules: JsonRules,
     pub thermal: JsonThermal,
@@ -73,12 +81,38 @@ pub struct JsonCoupling {
 }
 
 #[derive(Serialize)]
+pub struct JsonSolution {
+    /// `preset` (shipped), the file it was read from, or `solved now`.
+    pub from: String,
+    /// The guide it was solved at, and how far from it it is trusted.
+    pub width_nm: f64,
+    pub thickness_nm: f64,
+    pub wavelength_nm: f64,
+    pub reach: String,
+    pub grid: JsonGrid,
+    pub levels: usize,
+    /// Discretisation error of the nominal n_eff (Richardson estimate).
+    pub neff_error: f64,
+}
+
+#[derive(Serialize)]
+pub struct JsonGrid {
+    pub edge_step_nm: f64,
+    pub core_step_nm: f64,
+    pub cladding_step_nm: f64,
+    pub growth: f64,
+}
+
+#[derive(Serialize)]
 pub struct JsonCouplingRow {
     pub gap_nm: f64,
     pub k_per_um: f64,
     pub k_fit_per_um: f64,
     /// Local decay length of the smooth law, -1 / (d ln k / dg).
     pub decay_nm: f64,
+    /// The full-vector solution's discretisation error of this k (at its
+    /// nominal guide), rad/um.
+    pub k_error_per_um: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -145,7 +179,9 @@ pub struct JsonSource {
 pub fn to_json(p: &Process, c: &Characterisation) -> JsonProcess {
     let law = c.law();
     let from = match &p.coupling {
-        CouplingSource::Table { from, .. } => Some(from.clone()),
+        CouplingSource::Table { from, .. } | CouplingSource::Solved { from, .. } => {
+            Some(from.clone())
+        }
         CouplingSource::Model { .. } => None,
     };
     JsonProcess {
@@ -190,11 +226,13 @@ pub fn to_json(p: &Process, c: &Characterisation) -> JsonProcess {
                 .gaps_nm
                 .iter()
                 .zip(&law.table.k_per_um)
-                .map(|(&g, &k)| JsonCouplingRow {
+                .enumerate()
+                .map(|(i, (&g, &k))| JsonCouplingRow {
                     gap_nm: g,
                     k_per_um: k,
                     k_fit_per_um: law.fit.k_per_um(g),
                     decay_nm: law.smooth.decay_length_nm(g),
+                    k_error_per_um: c.solution.as_ref().map(|s| s.nominal().k_per_um[i].error),
                 })
                 .collect(),
             by_wavelength: c
@@ -208,6 +246,24 @@ pub fn to_json(p: &Process, c: &Characterisation) -> JsonProcess {
                 })
                 .collect(),
         },
+        solution: c.solution.as_ref().map(|s| {
+            let g = s.nominal().guide;
+            JsonSolution {
+                from: solution_origin(p, c),
+                width_nm: g.width_nm,
+                thickness_nm: g.thickness_nm,
+                wavelength_nm: g.wavelength_nm,
+                reach: s.reach(),
+                grid: JsonGrid {
+                    edge_step_nm: s.grid.edge_step_nm,
+                    core_step_nm: s.grid.core_step_nm,
+                    cladding_step_nm: s.grid.cladding_step_nm,
+                    growth: s.grid.growth,
+                },
+                levels: s.levels,
+                neff_error: s.nominal().neff.error,
+            }
+        }),
         three_guides: c.three_guides.map(|t| JsonThreeGuides {
             gap_nm: t.gap_nm,
             k_pair_per_um: t.k_pair_per_um,
@@ -254,6 +310,22 @@ pub fn to_json(p: &Process, c: &Characterisation) -> JsonProcess {
     }
 }
 
+/// Where the characterisation's full-vector solution came from.
+fn solution_origin(p: &Process, c: &Characterisation) -> String {
+    match (&p.coupling, &c.solution) {
+        (CouplingSource::Solved { solution, from, .. }, Some(s))
+            if std::sync::Arc::ptr_eq(solution, s) =>
+        {
+            if from == "preset" {
+                "shipped with the preset".into()
+            } else {
+                from.clone()
+            }
+        }
+        _ => "solved in this run".into(),
+    }
+}
+
 pub fn to_text(p: &Process, c: &Characterisation) -> String {
     let mut s = String::new();
     let l_nm = c.wavelength_um * 1e3;
@@ -281,21 +353,57 @@ pub fn to_text(p: &Process, c: &Characterisation) -> String {
             m.material.source()
         );
     }
+    let by = if c.solution.is_some() {
+        "the full-vector solver"
+    } else {
+        "the effective index method"
+    };
     let _ = writeln!(
         s,
-        "\nguide {:.0} x {:.0} nm (width x thickness), TE-like fundamental mode, by the effective index method",
+        "\nguide {:.0} x {:.0} nm (width x thickness), TE-like fundamental mode, by {by}",
         p.width_nm,
         p.film.thickness_um * 1e3
     );
+    if let Some(sol) = &c.solution {
+        let g = &sol.grid;
+        let _ = writeln!(
+            s,
+            "  solution                {}; solved at {}",
+            solution_origin(p, c),
+            sol.reach()
+        );
+        let _ = writeln!(
+            s,
+            "  grid                    {} nm at interfaces, {} nm in cores, {} nm in claddings, growth {}, and that grid halved",
+            g.edge_step_nm, g.core_step_nm, g.cladding_step_nm, g.growth
+        );
+    }
     if let Some(f) = c.film_index {
         let _ = writeln!(s, "  film index (TE0 slab)   {f:.5}");
     }
     if let Some(m) = &c.mode {
-        let _ = writeln!(s, "  n_eff                   {:.5}", m.neff);
+        match &c.solution {
+            Some(sol) => {
+                let _ = writeln!(
+                    s,
+                    "  n_eff                   {:.5}   (discretisation error {:.1e})",
+                    m.neff,
+                    sol.nominal().neff.error
+                );
+            }
+            None => {
+                let _ = writeln!(s, "  n_eff                   {:.5}", m.neff);
+            }
+        }
         if let Some(tm) = c.tm_like_neff {
             let _ = writeln!(
                 s,
-                "  n_eff of the TM-like    {tm:.5}   (cells use the TE-like mode above)"
+                "  n_eff of the TM-like    {tm:.5}   (cells use the TE-like mode above; {})",
+                if c.solution.is_some() {
+                    "full-vector"
+                } else {
+                    "effective index method"
+                }
             );
         }
         let _ = writeln!(s, "  group index             {:.4}", m.group_index);
@@ -318,14 +426,33 @@ pub fn to_text(p: &Process, c: &Characterisation) -> String {
     );
     let _ = writeln!(
         s,
-        "  {:>8}  {:>12}  {:>12}  {:>8}  {:>9}",
-        "gap nm", "k rad/um", "fit rad/um", "fit err", "decay nm"
+        "  {:>8}  {:>12}  {:>12}  {:>8}  {:>9}{}",
+        "gap nm",
+        "k rad/um",
+        "fit rad/um",
+        "fit err",
+        "decay nm",
+        if c.solution.is_some() {
+            "  discretisation err"
+        } else {
+            ""
+        }
     );
-    for (&g, &k) in law.table.gaps_nm.iter().zip(&law.table.k_per_um) {
+    for (i, (&g, &k)) in law
+        .table
+        .gaps_nm
+        .iter()
+        .zip(&law.table.k_per_um)
+        .enumerate()
+    {
         let kf = law.fit.k_per_um(g);
+        let err = c.solution.as_ref().map_or(String::new(), |sol| {
+            let e = sol.nominal().k_per_um[i];
+            format!("  {:>8.2}%", 100.0 * e.error / e.value)
+        });
         let _ = writeln!(
             s,
-            "  {g:>8.0}  {k:>12.5e}  {kf:>12.5e}  {:>7.2}%  {:>9.1}",
+            "  {g:>8.0}  {k:>12.5e}  {kf:>12.5e}  {:>7.2}%  {:>9.1}{err}",
             100.0 * (kf / k - 1.0),
             law.smooth.decay_length_nm(g)
         );
