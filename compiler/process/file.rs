@@ -652,3 +652,81 @@ mod tests {
         );
     }
 }
+
+#[cfg(test)]
+mod coupling_tests {
+    //! The `[coupling]` section: which model or solution a file's law
+    //! comes from.
+    use super::*;
+    use crate::process::solved::shipped;
+
+    /// Files from memory, by name.
+    struct Files(Vec<(&'static str, String)>);
+    impl FileLoader for Files {
+        fn load(&self, path: &str) -> Result<String, String> {
+            self.0
+                .iter()
+                .find(|(n, _)| *n == path)
+                .map(|(_, t)| t.clone())
+                .ok_or_else(|| "no such file".into())
+        }
+    }
+
+    fn read_with(text: &str, files: &Files) -> Result<Process, Vec<LocatedErrors>> {
+        read(&Source::new("run.toml", text), files)
+    }
+
+    #[test]
+    fn a_small_change_of_guide_keeps_the_shipped_solution() {
+        let p = read_with("[guide]\nwidth_nm = 480\n", &Files(vec![])).unwrap();
+        assert!(matches!(p.coupling, CouplingSource::Solved { ref from, .. } if from == "preset"));
+        let p = read_with("[coupling]\nmodel = \"effective_index\"\n", &Files(vec![])).unwrap();
+        assert!(
+            matches!(p.coupling, CouplingSource::Model { ref model, .. } if model == "effective_index")
+        );
+        // New gaps with the full-vector model: a fresh solve at those gaps.
+        let p = read_with(
+            "[coupling]\nmodel = \"full_vector\"\ngaps_nm = [100, 200, 300]\n",
+            &Files(vec![]),
+        )
+        .unwrap();
+        assert!(
+            matches!(p.coupling, CouplingSource::Model { ref model, ref gaps_nm, .. }
+            if model == "full_vector" && gaps_nm.len() == 3)
+        );
+    }
+
+    #[test]
+    fn a_saved_solution_is_checked_against_the_file() {
+        let text = shipped("si220_wire").unwrap().to_toml();
+        let files = Files(vec![("s.toml", text)]);
+        let p = read_with("[coupling]\nsolved = \"s.toml\"\n", &files).unwrap();
+        assert!(matches!(p.coupling, CouplingSource::Solved { ref from, .. } if from == "s.toml"));
+        // A guide beyond its reach: located on the `solved` value.
+        let src = "[guide]\nwidth_nm = 600\n[coupling]\nsolved = \"s.toml\"\n";
+        let e = read_with(src, &files).unwrap_err();
+        let d = &e[0].diagnostics.0[0];
+        assert!(d.message.contains("600.0 nm wide"), "{}", d.message);
+        assert_eq!(
+            Source::new("run.toml", src).line_col(d.span().start),
+            (4, 10)
+        );
+        // Two sources, an unknown model, a missing file.
+        let e = read_with(
+            "[coupling]\nmodel = \"full_vector\"\nsolved = \"s.toml\"\n",
+            &files,
+        )
+        .unwrap_err();
+        assert!(e[0].diagnostics.0[0].message.contains("one source"));
+        let e = read_with("[coupling]\nmodel = \"full_vectr\"\n", &files).unwrap_err();
+        assert!(
+            e[0].diagnostics.0[0]
+                .hint
+                .as_deref()
+                .unwrap()
+                .contains("`full_vector`")
+        );
+        let e = read_with("[coupling]\nsolved = \"none.toml\"\n", &files).unwrap_err();
+        assert!(e[0].diagnostics.0[0].message.contains("cannot read"));
+    }
+}

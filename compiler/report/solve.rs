@@ -33,7 +33,7 @@ pub struct Comparison {
     pub seconds: f64,
     pub threads: usize,
     pub rows: Vec<Row>,
-    /// Values of the six off-nominal stencil points, summarised: the
+    /// Values of the nine off-nominal stencil points, summarised: the
     /// largest |difference| / stated error of each.
     pub stencil: Vec<StencilRow>,
     /// Derived figures at the nominal guide (current, solved).
@@ -66,7 +66,7 @@ fn row(what: String, current: f64, stated: Option<f64>, solved: Estimate) -> Row
     }
 }
 
-const POINTS: [&str; 7] = [
+const POINTS: [&str; 10] = [
     "nominal",
     "width -h",
     "width +h",
@@ -74,6 +74,9 @@ const POINTS: [&str; 7] = [
     "thickness +h",
     "wavelength -h",
     "wavelength +h",
+    "width, thickness +h",
+    "width, wavel. +h",
+    "thickness, wavel. +h",
 ];
 
 /// Compares `solved` (fresh, `solves` solves in `seconds`) with what the

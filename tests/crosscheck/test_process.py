@@ -1,5 +1,5 @@
-"""`trilane process --json` checked against slab-waveguide optics written here
-with numpy and scipy.
+"""`trilane process --model effective_index --json` checked against
+slab-waveguide optics written here with numpy and scipy.
 
 Every reference number in this file is computed by the test itself (or is a
 published value), never read back from trilane:
@@ -239,11 +239,14 @@ def rel(a, b):
 
 @pytest.fixture(scope="module")
 def report(trilane):
+    """`trilane process ... --json` by the effective index method, the model
+    this file re-derives (the presets' own law is full-vector:
+    test_full_vector.py checks that one)."""
     cache = {}
 
     def get(*args):
         if args not in cache:
-            r = trilane("process", *args, "--json")
+            r = trilane("process", *args, "--model", "effective_index", "--json")
             assert r.returncode == 0, r.stderr
             cache[args] = json.loads(r.stdout)
         return cache[args]
