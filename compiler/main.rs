@@ -761,7 +761,22 @@ fn solve_process(
         }
     };
     let seconds = t.elapsed().as_secs_f64();
-    let cmp = trilane::report::solve::compare(&p.name, c, &fresh, seconds);
+    let mut cmp = trilane::report::solve::compare(&p.name, c, &fresh, seconds);
+    // The scheme's order, observed: the nominal strip on three grids.
+    let fv = trilane::process::vector::FullVector::te_like(req.grid.spec());
+    let strip = trilane::process::eim::Strips::single(p.width_nm * 1e-3);
+    match fv.convergence(&p.film, &strip, p.wavelength_um, 3) {
+        Ok(conv) => {
+            let e = &conv.neff[0];
+            cmp.order_check = Some(trilane::report::solve::OrderCheck {
+                observed_order: e.observed_order,
+                neff_three_levels: e.extrapolated,
+                neff_two_levels: fresh.nominal().neff.value,
+                finest_step_nm: e.steps_um[2] * 1e3,
+            });
+        }
+        Err(e) => eprintln!("note: the three-grid convergence check did not run: {e}"),
+    }
     if let Some(path) = save
         && let Err(e) = write_atomically(path, fresh.to_toml().as_bytes())
     {

@@ -181,6 +181,30 @@ pub struct Solution {
     /// The TM-like fundamental mode of one strip at the nominal guide (none
     /// when it is not guided).
     pub tm_like_neff: Option<Estimate>,
+    /// What the solves did (not stored in files).
+    #[serde(skip)]
+    pub stats: Option<SolveStats>,
+}
+
+/// Figures of the solves behind a fresh solution.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct SolveStats {
+    /// Largest eigen-residual `||A x - lambda x|| / ||x||` of any mode.
+    pub max_residual: f64,
+    /// Unknowns of the largest (finest-level) solve.
+    pub max_unknowns: usize,
+    /// Arnoldi steps over all solves.
+    pub arnoldi_steps: usize,
+}
+
+impl SolveStats {
+    fn add(&mut self, c: &Convergence) {
+        for r in &c.reports {
+            self.max_residual = self.max_residual.max(r.max_residual);
+            self.max_unknowns = self.max_unknowns.max(r.unknowns);
+            self.arnoldi_steps += r.iterations;
+        }
+    }
 }
 
 /// The solution evaluated at one guide.
@@ -536,7 +560,13 @@ pub fn solve(req: &Request, progress: &dyn Progress) -> Result<Solution, SolvedE
         ..p.film.clone()
     };
     let done = AtomicUsize::new(0);
-    progress.start("full-vector solves", jobs.len() + 2);
+    progress.start(
+        &format!(
+            "full-vector solve of {:.0} x {:.0} nm",
+            x0.width_nm, x0.thickness_nm
+        ),
+        jobs.len() + 2,
+    );
     let tick = || {
         done.fetch_add(1, Ordering::Relaxed);
         progress.done_one();
@@ -578,6 +608,10 @@ pub fn solve(req: &Request, progress: &dyn Progress) -> Result<Solution, SolvedE
         },
     );
     let three = three?;
+    let mut stats = SolveStats::default();
+    for c in results.iter().chain(std::iter::once(&three)) {
+        stats.add(c);
+    }
     // An unguided TM-like mode is a property of the guide, not a failure.
     let tm_like_neff = match tm {
         Ok(c) => Some(c.neff[0].clone()),
@@ -649,6 +683,7 @@ pub fn solve(req: &Request, progress: &dyn Progress) -> Result<Solution, SolvedE
             half_outer_splitting_per_um: half,
         }),
         tm_like_neff: tm_like_neff.as_ref().map(estimate),
+        stats: Some(stats),
     })
 }
 
@@ -747,6 +782,7 @@ mod tests {
             assert!(matches!(p.coupling, CouplingSource::Solved { .. }));
             // The file round-trips exactly.
             assert_eq!(Solution::parse(&s.to_toml()).unwrap(), *s, "{name}");
+            assert!(s.stats.is_none(), "files carry no solve figures");
         }
     }
 

@@ -44,6 +44,21 @@ pub struct Comparison {
     /// Whether the current solution holds within its stated errors; none
     /// when it is no solution (nothing to hold it to).
     pub passed: Option<bool>,
+    /// Largest eigen-residual, unknowns of the largest solve, Arnoldi steps.
+    pub max_residual: Option<f64>,
+    pub max_unknowns: Option<usize>,
+    pub arnoldi_steps: Option<usize>,
+    /// The nominal strip on three nested grids: the observed order of
+    /// convergence and the three-level limit of n_eff (when run).
+    pub order_check: Option<OrderCheck>,
+}
+
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct OrderCheck {
+    pub observed_order: Option<f64>,
+    pub neff_three_levels: f64,
+    pub neff_two_levels: f64,
+    pub finest_step_nm: f64,
 }
 
 #[derive(Clone, Debug, Serialize)]
@@ -194,6 +209,10 @@ pub fn compare(process: &str, c: &Characterisation, solved: &Solution, seconds: 
         dneff_dt_per_nm: [current_figures[2], new[2]],
         three_guide_ratio,
         passed,
+        max_residual: solved.stats.map(|s| s.max_residual),
+        max_unknowns: solved.stats.map(|s| s.max_unknowns),
+        arnoldi_steps: solved.stats.map(|s| s.arnoldi_steps),
+        order_check: None,
     }
 }
 
@@ -211,6 +230,22 @@ pub fn to_text(c: &Comparison, solved: &Solution) -> String {
         g.edge_step_nm, g.core_step_nm, g.cladding_step_nm, g.growth
     );
     let _ = writeln!(s, "  solved at {}", solved.reach());
+    if let (Some(r), Some(n), Some(a)) = (c.max_residual, c.max_unknowns, c.arnoldi_steps) {
+        let _ = writeln!(
+            s,
+            "  largest solve {n} unknowns; {a} Arnoldi steps in all; largest eigen-residual {r:.1e}"
+        );
+    }
+    if let Some(o) = &c.order_check {
+        let order = o
+            .observed_order
+            .map_or("not monotone".to_owned(), |p| format!("{p:.2}"));
+        let _ = writeln!(
+            s,
+            "  convergence: the nominal strip on three nested grids (finest {:.1} nm in the cores) converges at order {order} (the scheme's: 2); n_eff {:.6} from three levels, {:.6} from two",
+            o.finest_step_nm, o.neff_three_levels, o.neff_two_levels
+        );
+    }
     let _ = writeln!(s, "\ncompared with {}", c.against);
     let _ = writeln!(
         s,
