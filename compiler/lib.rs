@@ -26,6 +26,7 @@ pub mod cell;
 pub mod circuit;
 pub mod compile;
 pub mod diagnostic;
+pub mod layout;
 pub mod optics;
 pub mod process;
 pub mod report;

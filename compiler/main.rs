@@ -93,7 +93,20 @@ enum Command {
         /// Print one JSON document on stdout instead of the table
         #[arg(long)]
         json: bool,
+        /// Simulate the compiled nominal chip (loss included, as `build`
+        /// makes it) instead of the ideal network, the ideal figures beside
+        #[arg(long)]
+        compiled: bool,
+        #[command(flatten)]
+        compile: CompileArgs,
     },
+    /// Compile a chip: netlist, floorplan picture and reports in a folder
+    ///
+    /// Writes DIR/netlist.json, DIR/floorplan.svg, DIR/report.txt and
+    /// DIR/report.json, each atomically, and prints the summary. An input
+    /// error writes nothing; a requirement the nominal chip misses still
+    /// writes everything and exits 1.
+    Build(BuildArgs),
     /// Show a process: materials, the guide's mode, the coupling law and its
     /// fits, design rules, phase shifters, loss and tolerances
     ///
@@ -198,13 +211,17 @@ fn main() -> ExitCode {
                 launch,
                 output,
                 json,
+                compiled,
+                compile,
             } => simulate(
                 &file,
                 chip.as_deref(),
                 launch.as_deref(),
                 output.as_deref(),
                 json,
+                compiled.then_some(&compile),
             ),
+            Command::Build(a) => build(&a),
             Command::Process {
                 target,
                 model,
@@ -555,11 +572,19 @@ fn simulate(
     launch: Option<&str>,
     output: Option<&str>,
     json: bool,
+    compiled: Option<&CompileArgs>,
 ) -> u8 {
     use trilane::optics::simulate as sim;
     let (src, circuit) = match load_chip(path, chip) {
         Ok(x) => x,
         Err(code) => return code,
+    };
+    let built = match compiled {
+        Some(args) => match compile_chip(path, &src, &circuit, args) {
+            Ok(b) => Some(b),
+            Err(code) => return code,
+        },
+        None => None,
     };
     let net = trilane::optics::network(&circuit);
     let launch = match launch.map(|t| sim::parse_launch(&net, t)).transpose() {
@@ -576,7 +601,29 @@ fn simulate(
             return 2;
         }
     };
-    let result = match sim::simulate_network(&circuit, net, launch.as_deref(), output.as_deref()) {
+    let result = match &built {
+        None => sim::simulate_network(&circuit, net, launch.as_deref(), output.as_deref()),
+        Some(b) => {
+            let fp = &b.chosen.floorplan;
+            let summary = format!(
+                "{} strategy, {} {} cells, {:.1} um long, transmission {:.4}",
+                b.chosen.strategy.name(),
+                b.chosen.cells.cells().count(),
+                b.chosen.cells.kind.name(),
+                fp.length_um,
+                b.chosen.figures.transmission
+            );
+            sim::simulate_compiled(
+                &b.circuit,
+                &b.network,
+                &fp.transfer(),
+                summary,
+                launch.as_deref(),
+                output.as_deref(),
+            )
+        }
+    };
+    let result = match result {
         Ok(r) => r,
         Err(e) => {
             eprintln!("error: chip {}: {e}", circuit.name);
@@ -794,6 +841,197 @@ fn solve_process(
             "error: the full-vector solution of {} differs from a fresh solve by more than its stated discretisation error; if the solver changed on purpose, write a new one with `trilane process {} --solve --save FILE.toml`",
             p.name, p.name
         );
+        return 1;
+    }
+    0
+}
+
+/// Options shared by the commands that compile (cli.md).
+#[derive(clap::Args, Clone)]
+struct CompileArgs {
+    /// Cell kind for the mesh's rotations
+    #[arg(long = "cell", value_enum, default_value = "geometric")]
+    cell: CellKindArg,
+    /// How the network becomes a mesh: `auto` builds both and keeps the
+    /// better expected fidelity under the tolerances, then the shorter chip
+    #[arg(long, value_enum, default_value = "auto")]
+    strategy: StrategyArg,
+    /// Mesh decomposition
+    #[arg(long, value_enum, default_value = "rectangular")]
+    mesh: MeshArg,
+    /// Phase shifters: thermal (tunable heaters) or passive (widened sections)
+    #[arg(long, value_enum, default_value = "thermal")]
+    phase: PhaseArg,
+    /// Geometric cells: one uniform length for the mesh, or each the shortest for its split
+    #[arg(long = "cell-length", value_enum, default_value = "uniform")]
+    cell_length: LengthArg,
+    /// The process (a preset name or a process file), instead of the chip's `process` line
+    #[arg(long, value_name = "NAME|FILE")]
+    process: Option<String>,
+    /// Compute the coupling law with this model instead of the process's own
+    #[arg(long, value_enum)]
+    model: Option<ModelArg>,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum StrategyArg {
+    Auto,
+    Flat,
+    Local,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum MeshArg {
+    Rectangular,
+    Triangular,
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum PhaseArg {
+    Thermal,
+    Passive,
+}
+
+#[derive(clap::Args)]
+struct BuildArgs {
+    /// Circuit file (.trl)
+    #[arg(value_name = "FILE")]
+    file: PathBuf,
+    /// The output folder (made if missing)
+    #[arg(short = 'o', long = "out", value_name = "DIR", default_value = "out")]
+    out: PathBuf,
+    /// The chip to build, when the file holds several
+    #[arg(long, value_name = "NAME")]
+    chip: Option<String>,
+    #[command(flatten)]
+    compile: CompileArgs,
+    /// Print report.json on stdout instead of the summary
+    #[arg(long)]
+    json: bool,
+}
+
+fn cell_kind(a: CellKindArg) -> trilane::cell::CellKind {
+    use trilane::cell::CellKind;
+    match a {
+        CellKindArg::Geometric => CellKind::Geometric,
+        CellKindArg::Coupler => CellKind::Coupler,
+        CellKindArg::Mzi => CellKind::Mzi,
+    }
+}
+
+/// The chip's process (`--process`, or its own line) and its build.
+fn compile_chip(
+    path: &Path,
+    src: &Source,
+    circuit: &trilane::circuit::Circuit,
+    a: &CompileArgs,
+) -> Result<trilane::compile::chip::Build, u8> {
+    use trilane::compile::chip::{BuildOptions, StrategyChoice, build};
+    use trilane::compile::mesh::Strategy;
+    let mut p = match &a.process {
+        Some(t) => load_process(t)?,
+        None => {
+            let loader = FolderLoader {
+                dir: path.parent().map(Path::to_path_buf).unwrap_or_default(),
+            };
+            trilane::process::resolve(circuit.process.as_ref(), &loader).map_err(|d| {
+                eprint!("{}", diagnostic::render(&d, src, style()));
+                1u8
+            })?
+        }
+    };
+    if let Some(m) = a.model {
+        p = p.with_model(m.name());
+    }
+    let o = BuildOptions {
+        strategy: match a.strategy {
+            StrategyArg::Auto => StrategyChoice::Auto,
+            StrategyArg::Flat => StrategyChoice::Only(Strategy::Flat),
+            StrategyArg::Local => StrategyChoice::Only(Strategy::Local),
+        },
+        cell: cell_kind(a.cell),
+        mesh: match a.mesh {
+            MeshArg::Rectangular => trilane::optics::decompose::Layout::Rectangular,
+            MeshArg::Triangular => trilane::optics::decompose::Layout::Triangular,
+        },
+        tuning: match a.phase {
+            PhaseArg::Thermal => trilane::layout::Tuning::Thermal,
+            PhaseArg::Passive => trilane::layout::Tuning::Passive,
+        },
+        rule: match a.cell_length {
+            LengthArg::Uniform => trilane::cell::geometric::LengthRule::Uniform,
+            LengthArg::Shortest => trilane::cell::geometric::LengthRule::Shortest,
+        },
+    };
+    build(circuit, &p, o).map_err(|e| {
+        eprintln!("error: chip {} on {}: {e}", circuit.name, p.name);
+        1u8
+    })
+}
+
+/// `trilane build`: everything computed first, then each file written
+/// atomically, so an input error leaves the output folder as it was.
+fn build(a: &BuildArgs) -> u8 {
+    let (src, circuit) = match load_chip(&a.file, a.chip.as_deref()) {
+        Ok(x) => x,
+        Err(code) => return code,
+    };
+    let b = match compile_chip(&a.file, &src, &circuit, &a.compile) {
+        Ok(b) => b,
+        Err(code) => return code,
+    };
+    let fp = &b.chosen.floorplan;
+    let netlist = match trilane::layout::netlist::to_json(fp) {
+        Ok(t) => t,
+        Err(e) => {
+            eprintln!("error: internal: the netlist of chip {}: {e}", circuit.name);
+            return 70;
+        }
+    };
+    let svg = trilane::layout::svg::floorplan_svg(fp);
+    let names = ["netlist.json", "floorplan.svg", "report.txt", "report.json"];
+    let outputs: Vec<String> = names
+        .iter()
+        .map(|n| a.out.join(n).display().to_string())
+        .collect();
+    let checks = trilane::report::build::check_requirements(&b, &src);
+    let text = trilane::report::build::to_text(&b, &checks, &outputs);
+    let json =
+        serde_json::to_string_pretty(&trilane::report::build::to_json(&b, &checks, &outputs))
+            .expect("the report serialises")
+            + "\n";
+    if let Err(e) = std::fs::create_dir_all(&a.out) {
+        eprintln!("error: cannot make {}: {}", a.out.display(), io_reason(&e));
+        return 2;
+    }
+    for (name, bytes) in names.iter().zip([
+        netlist.as_bytes(),
+        svg.as_bytes(),
+        text.as_bytes(),
+        json.as_bytes(),
+    ]) {
+        let path = a.out.join(name);
+        if let Err(e) = write_atomically(&path, bytes) {
+            eprintln!("error: cannot write {}: {}", path.display(), io_reason(&e));
+            return 2;
+        }
+    }
+    let shown = if a.json { &json } else { &text };
+    let _ = std::io::stdout().lock().write_all(shown.as_bytes());
+    let failed: Vec<&trilane::report::build::RequirementCheck> =
+        checks.iter().filter(|c| c.ok == Some(false)).collect();
+    if !failed.is_empty() {
+        for f in &failed {
+            eprintln!(
+                "error: {}:{}: requirement {} {} {} fails on the nominal chip: {}",
+                src.name,
+                f.line,
+                f.what,
+                f.op,
+                f.limit,
+                f.note.clone().unwrap_or_default()
+            );
+        }
         return 1;
     }
     0

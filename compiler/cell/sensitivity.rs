@@ -370,7 +370,7 @@ fn ensemble(rs: &[Response]) -> Response {
 
 /// The seed of sample `i` of a stream: independent streams per sample, so
 /// results do not depend on the thread count.
-fn sample_rng(seed: u64, i: usize) -> SplitMix64 {
+pub(crate) fn sample_rng(seed: u64, i: usize) -> SplitMix64 {
     let mut r = SplitMix64::new(seed ^ (i as u64).wrapping_mul(0xD1B5_4A32_D192_ED03));
     r.next_u64();
     r

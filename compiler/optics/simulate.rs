@@ -77,6 +77,72 @@ pub struct Simulation {
     /// What the compile passes would remove (the build uses them).
     pub passes: PassReport,
     pub warnings: Vec<Diagnostic>,
+    /// Set when this is a compiled chip's network (`simulate --compiled`).
+    pub compiled: Option<Compiled>,
+}
+
+/// A compiled chip beside its ideal network.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Compiled {
+    pub summary: String,
+    /// The ideal network's logical result (target, scheme success, fidelity).
+    pub ideal: Option<LogicalResult>,
+    /// The ideal network's probability of each pattern of `statistics`.
+    pub ideal_probability: Vec<f64>,
+}
+
+/// [`simulate_network`] of a compiled chip of transfer `chip_u` (loss
+/// included) on the modes of the ideal network `ideal_net`: the logical
+/// map of the chip measured against the ideal network's target, and the
+/// ideal figures beside.
+pub fn simulate_compiled(
+    circuit: &Circuit,
+    ideal_net: &ModeNetwork,
+    chip_u: &nalgebra::DMatrix<num_complex::Complex64>,
+    summary: String,
+    launch: Option<&[u32]>,
+    output: Option<&[u32]>,
+) -> Result<Simulation, SimulateError> {
+    let ideal = logical_result(circuit, ideal_net).ok();
+    let mut net = ideal_net.clone();
+    net.unitary = chip_u.clone();
+    let mut sim = simulate_network(circuit, net, launch, output)?;
+    if let (Ok(l), Some(i)) = (sim.logical.as_mut(), ideal.as_ref()) {
+        l.target = i.target.clone();
+        l.process_fidelity_with_phases =
+            logical::process_fidelity(i.target.matrix(), &l.map.matrix);
+        l.fidelity = if ideal_net.detect {
+            logical::detect_fidelity_of(
+                i.target.matrix(),
+                &l.map.matrix,
+                &ideal_net.detected_qubits,
+            )
+        } else {
+            l.process_fidelity_with_phases
+        };
+        l.average_gate_fidelity = logical::average_gate_fidelity(l.fidelity, l.map.matrix.nrows());
+    }
+    let launch_occ = sim.launch.clone();
+    let ideal_probability = match &sim.statistics {
+        Statistics::Distribution(all) => all
+            .iter()
+            .map(|o| {
+                amplitude::amplitude(&ideal_net.unitary, &launch_occ, &o.occupation)
+                    .map_or(f64::NAN, |a| a.norm_sqr())
+            })
+            .collect(),
+        Statistics::Pattern(o) => vec![
+            amplitude::amplitude(&ideal_net.unitary, &launch_occ, &o.occupation)
+                .map_or(f64::NAN, |a| a.norm_sqr()),
+        ],
+        Statistics::OutOfReach(_) => Vec::new(),
+    };
+    sim.compiled = Some(Compiled {
+        summary,
+        ideal,
+        ideal_probability,
+    });
+    Ok(sim)
 }
 
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -172,6 +238,7 @@ pub fn simulate_network(
         statistics,
         passes,
         warnings,
+        compiled: None,
     })
 }
 

@@ -2,6 +2,7 @@
 //! (their own structs, never serde derives on the IR). The field names are
 //! documented in docs/json.md.
 
+pub mod build;
 pub mod cell;
 pub mod cell_sweep;
 pub mod process;

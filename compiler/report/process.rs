@@ -311,7 +311,7 @@ pub fn to_json(p: &Process, c: &Characterisation) -> JsonProcess {
 }
 
 /// Where the characterisation's full-vector solution came from.
-fn solution_origin(p: &Process, c: &Characterisation) -> String {
+pub fn solution_origin(p: &Process, c: &Characterisation) -> String {
     match (&p.coupling, &c.solution) {
         (CouplingSource::Solved { solution, from, .. }, Some(s))
             if std::sync::Arc::ptr_eq(solution, s) =>

@@ -18,8 +18,11 @@ pub const TABLE_MAP_QUBITS: usize = 3;
 #[derive(Serialize)]
 pub struct JsonSimulation {
     pub chip: String,
-    /// Always `"ideal"` here: the lossless network as written.
+    /// `"ideal"`: the lossless network as written; `"compiled"`: the
+    /// compiled nominal chip (`simulate --compiled`).
     pub network: &'static str,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub compiled: Option<JsonCompiled>,
     pub qubits: Vec<String>,
     pub modes: Vec<String>,
     pub mode_info: Vec<JsonMode>,
@@ -61,6 +64,13 @@ pub struct JsonSimulation {
 }
 
 #[derive(Serialize)]
+pub struct JsonCompiled {
+    pub summary: String,
+    pub ideal_success_probability: Option<f64>,
+    pub ideal_process_fidelity: Option<f64>,
+}
+
+#[derive(Serialize)]
 pub struct JsonMode {
     pub name: String,
     /// `rail`, `free`, `ancilla`.
@@ -77,6 +87,9 @@ pub struct JsonOutcome {
     pub logical: Option<String>,
     pub probability: f64,
     pub amplitude: JsonComplex,
+    /// `simulate --compiled`: the ideal network's probability of the pattern.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ideal_probability: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -106,7 +119,16 @@ pub fn to_json(sim: &Simulation, src: &Source) -> JsonSimulation {
     let lr = sim.logical.as_ref().ok();
     let mut doc = JsonSimulation {
         chip: net.chip.clone(),
-        network: "ideal",
+        network: if sim.compiled.is_some() {
+            "compiled"
+        } else {
+            "ideal"
+        },
+        compiled: sim.compiled.as_ref().map(|c| JsonCompiled {
+            summary: c.summary.clone(),
+            ideal_success_probability: c.ideal.as_ref().map(|i| i.scheme_success),
+            ideal_process_fidelity: c.ideal.as_ref().map(|i| i.fidelity),
+        }),
         qubits: net.qubits.iter().map(|q| q.name.clone()).collect(),
         modes: net.modes.iter().map(|m| m.name.clone()).collect(),
         mode_info: net
@@ -181,12 +203,17 @@ pub fn to_json(sim: &Simulation, src: &Source) -> JsonSimulation {
         Statistics::Distribution(all) => {
             doc.distribution = Some(
                 all.iter()
-                    .filter(|o| o.probability() > PROBABILITY_CUTOFF)
-                    .map(|o| JsonOutcome {
+                    .enumerate()
+                    .filter(|(_, o)| o.probability() > PROBABILITY_CUTOFF)
+                    .map(|(i, o)| JsonOutcome {
                         occupation: o.occupation.clone(),
                         logical: logical_label(net, &o.occupation),
                         probability: o.probability(),
                         amplitude: o.amplitude.into(),
+                        ideal_probability: sim
+                            .compiled
+                            .as_ref()
+                            .and_then(|c| c.ideal_probability.get(i).copied()),
                     })
                     .collect(),
             );
@@ -222,11 +249,22 @@ fn list(v: &[u32]) -> String {
 pub fn to_text(sim: &Simulation, circuit: &crate::circuit::Circuit, src: &Source) -> String {
     let net = &sim.network;
     let mut s = String::new();
-    let _ = writeln!(
-        s,
-        "chip {}: the ideal network (lossless, the scheme as written)",
-        net.chip
-    );
+    match &sim.compiled {
+        None => {
+            let _ = writeln!(
+                s,
+                "chip {}: the ideal network (lossless, the scheme as written)",
+                net.chip
+            );
+        }
+        Some(c) => {
+            let _ = writeln!(
+                s,
+                "chip {}: the compiled nominal chip (loss included): {}",
+                net.chip, c.summary
+            );
+        }
+    }
     let qn: Vec<&str> = net.qubits.iter().map(|q| q.name.as_str()).collect();
     let _ = writeln!(
         s,
@@ -302,11 +340,26 @@ pub fn to_text(sim: &Simulation, circuit: &crate::circuit::Circuit, src: &Source
                 }
             };
             let _ = writeln!(s, "  target                  {target}");
-            let _ = writeln!(
-                s,
-                "  scheme success          {}   Tr(V^dag V) / {d}",
-                figure(l.scheme_success)
-            );
+            let ideal = sim.compiled.as_ref().and_then(|c| c.ideal.as_ref());
+            if sim.compiled.is_some() {
+                let _ = writeln!(
+                    s,
+                    "  success on the chip     {}   Tr(V^dag V) / {d}, loss included{}",
+                    figure(l.scheme_success),
+                    ideal
+                        .map(|i| format!("; ideal network {}", figure(i.scheme_success)))
+                        .unwrap_or_default()
+                );
+                if let Some(i) = ideal {
+                    let _ = writeln!(s, "  ideal network fidelity  {:.6}", i.fidelity);
+                }
+            } else {
+                let _ = writeln!(
+                    s,
+                    "  scheme success          {}   Tr(V^dag V) / {d}",
+                    figure(l.scheme_success)
+                );
+            }
             match l.fidelity_kind {
                 crate::optics::simulate::FidelityKind::UpToOutputPhases => {
                     let _ = writeln!(
@@ -351,18 +404,36 @@ pub fn to_text(sim: &Simulation, circuit: &crate::circuit::Circuit, src: &Source
                 total
             );
             let width = (net.modes.len() * 2).max(10);
+            let ideal_of = |o: &crate::optics::amplitude::Outcome| -> Option<f64> {
+                let c = sim.compiled.as_ref()?;
+                let i = all.iter().position(|a| a.occupation == o.occupation)?;
+                c.ideal_probability.get(i).copied()
+            };
+            let compiled = sim.compiled.is_some();
             let _ = writeln!(
                 s,
-                "  {:<width$}  {:<8}  {:>12}  amplitude",
-                "occupation", "logical", "probability"
+                "  {:<width$}  {:<8}  {:>12}{}  amplitude",
+                "occupation",
+                "logical",
+                "probability",
+                if compiled {
+                    format!("  {:>12}", "ideal")
+                } else {
+                    String::new()
+                }
             );
             for o in shown.iter().take(TABLE_ROWS) {
                 let _ = writeln!(
                     s,
-                    "  {:<width$}  {:<8}  {:>12}  {}",
+                    "  {:<width$}  {:<8}  {:>12}{}  {}",
                     list(&o.occupation),
                     logical_label(net, &o.occupation).unwrap_or_else(|| "-".into()),
                     figure(o.probability()),
+                    if compiled {
+                        format!("  {:>12}", ideal_of(o).map(figure).unwrap_or_default())
+                    } else {
+                        String::new()
+                    },
                     complex_text(o.amplitude, 6)
                 );
             }
