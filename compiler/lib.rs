@@ -15,9 +15,15 @@
 //!    output phases), each reporting what it removed
 //! 5. `process::law::characterise` a `Process` (preset or TOML file) through
 //!    a `WaveguideModel` -> its mode figures and coupling law
-//! 6. `report`            text tables, JSON wire types, figures
+//! 6. `cell::design`      one cell (geometric, coupler, MZI) on that law
+//! 7. `compile::chip::build` circuit + process -> the chip: `compile::mesh`
+//!    (flat or local `Mesh`), `compile::cells::realise` (`CellMesh`),
+//!    `layout::place` (`Floorplan`), the nominal figures; `auto` builds both
+//!    strategies and chooses
+//! 8. exporters of the `Floorplan`: `layout::netlist`, `layout::svg`
+//! 9. `report`            text tables, JSON wire types, figures
 //!
-//! The cell, mesh strategies, layout and budget stages follow as they land (see README.md for what works today).
+//! The GDSII mask and the budget follow (see README.md for what works today).
 //!
 //! The core takes text and values and returns values; only `main.rs` touches
 //! the file system, and diagnostics are data until `diagnostic::render`.

@@ -15,10 +15,12 @@ use trilane::source::{self, Source, Span};
 ///
 /// This release has the front end (`check` validates circuit files, `fmt`
 /// formats them), the linear-optical core (`simulate` computes what a chip's
-/// network does), the process model (`process`) and the first of the cell
-/// stage (`cell` designs one three-waveguide cell). The chip build follows.
+/// network does), the process model (`process`), the cell (`cell` designs
+/// one three-waveguide cell) and the chip build (`build`: netlist,
+/// floorplan picture and reports). The GDSII mask and the budget follow.
 ///
-/// Exit codes: 0 success; 1 the input has errors; 2 usage error (bad
+/// Exit codes: 0 success; 1 the input has errors (or a built chip misses a
+/// requirement); 2 usage error (bad
 /// options, unreadable file); 70 internal error (please report it).
 #[derive(Parser)]
 #[command(
@@ -26,7 +28,7 @@ use trilane::source::{self, Source, Span};
     version,
     about,
     long_about,
-    after_help = "Start with: trilane check circuits/bell_pair.trl\n            trilane simulate circuits/bell_pair.trl\n            trilane process\n            trilane cell --theta 0.7854\nLanguage reference: docs/language.md; physics: docs/physics.md"
+    after_help = "Start with: trilane check circuits/bell_pair.trl\n            trilane simulate circuits/bell_pair.trl\n            trilane process\n            trilane cell --theta 0.7854\n            trilane build circuits/bell_pair.trl -o out\nLanguage reference: docs/language.md; physics: docs/physics.md"
 )]
 struct Cli {
     #[command(subcommand)]

@@ -85,8 +85,21 @@ impl<'a> DesignCache<'a> {
         let near = if x - (k as f64) < 0.5 { a } else { b };
         // A grid cell that had to raise its closer gap to keep the minimum
         // gap is not a smooth neighbour: refine that theta afresh.
+        // (Its analytic start differs from the plain analytic design on the
+        // process minimum; with uniform lengths the plain one is itself
+        // above the minimum, so the minimum alone does not tell.)
         let raised = |c: &RefinedCell| {
-            (c.analytic.gap_lower_nm.min(c.analytic.gap_upper_nm) - ctx.min_gap_nm).abs() > 1e-6
+            geometric::analytic(
+                c.analytic.theta,
+                ctx.fit,
+                ctx.min_gap_nm,
+                ctx.rule,
+                ctx.residual,
+            )
+            .map_or(true, |plain| {
+                (plain.gap_lower_nm - c.analytic.gap_lower_nm).abs() > 1e-6
+                    || (plain.gap_upper_nm - c.analytic.gap_upper_nm).abs() > 1e-6
+            })
         };
         if raised(a) || raised(b) {
             return refine::refine(theta, ctx);

@@ -115,7 +115,11 @@ fn f(x: f64) -> Value {
     json!(x)
 }
 
-fn params(c: &super::floorplan::Component, fp: &Floorplan) -> (&'static str, Map<String, Value>) {
+fn params(
+    c: &super::floorplan::Component,
+    fp: &Floorplan,
+    leads: &std::collections::BTreeMap<&str, Vec<&str>>,
+) -> (&'static str, Map<String, Value>) {
     let mut m = Map::new();
     let mut put = |k: &str, v: Value| {
         m.insert(k.to_owned(), v);
@@ -238,7 +242,7 @@ fn params(c: &super::floorplan::Component, fp: &Floorplan) -> (&'static str, Map
                     put("beta_per_um", f(fp.beta_per_um));
                     put("split_error", f(r.quality.split_error));
                     put("leakage", f(r.quality.leakage));
-                    put("lead", lead_of(c, fp));
+                    put("lead", lead_of(c, fp, leads));
                     "geometric_cell"
                 }
                 CellDesign::Coupler(k) => {
@@ -247,7 +251,7 @@ fn params(c: &super::floorplan::Component, fp: &Floorplan) -> (&'static str, Map
                     put("bend_radius_um", f(k.bend_radius_um));
                     put("bend_reach_um", f(k.bend_reach_um));
                     put("length_um", f(k.length_um));
-                    put("lead", lead_of(c, fp));
+                    put("lead", lead_of(c, fp, leads));
                     "coupler"
                 }
                 CellDesign::Mzi(z) => {
@@ -272,7 +276,7 @@ fn params(c: &super::floorplan::Component, fp: &Floorplan) -> (&'static str, Map
                             "rail_block": ComplexMatrix::of(&z.coupler.transfer),
                         }),
                     );
-                    put("lead", lead_of(c, fp));
+                    put("lead", lead_of(c, fp, leads));
                     "mzi"
                 }
             }
@@ -282,14 +286,26 @@ fn params(c: &super::floorplan::Component, fp: &Floorplan) -> (&'static str, Map
 }
 
 /// The cell's lead-in and lead-out bends, by component id.
-fn lead_of(c: &super::floorplan::Component, fp: &Floorplan) -> Value {
-    let ids: Vec<&str> = fp
-        .components
-        .iter()
-        .filter(|o| o.id.starts_with(&format!("{}.lead_", c.id)))
-        .map(|o| o.id.as_str())
-        .collect();
+fn lead_of(
+    c: &super::floorplan::Component,
+    fp: &Floorplan,
+    leads: &std::collections::BTreeMap<&str, Vec<&str>>,
+) -> Value {
+    let ids = leads.get(c.id.as_str()).cloned().unwrap_or_default();
     json!({ "bends": ids, "radius_um": fp.process.min_bend_radius_um })
+}
+
+/// Lead bends by the id of their cell (`<cell>.lead_in<m>` / `lead_out`).
+fn leads_by_cell(fp: &Floorplan) -> std::collections::BTreeMap<&str, Vec<&str>> {
+    let mut m: std::collections::BTreeMap<&str, Vec<&str>> = Default::default();
+    for o in &fp.components {
+        if let Kind::Bend { .. } = o.kind
+            && let Some(i) = o.id.find(".lead_")
+        {
+            m.entry(&o.id[..i]).or_default().push(o.id.as_str());
+        }
+    }
+    m
 }
 
 #[derive(Debug, thiserror::Error)]
@@ -379,11 +395,12 @@ pub fn netlist(fp: &Floorplan) -> Result<Netlist, NetlistError> {
             "fit": {"k_ref_per_um": p.k_ref_per_um, "g_ref_nm": p.g_ref_nm, "g_c_nm": p.g_c_nm, "fit_rms": p.fit_rms},
         },
     });
+    let leads = leads_by_cell(fp);
     let components = fp
         .components
         .iter()
         .map(|c| {
-            let (kind, params) = params(c, fp);
+            let (kind, params) = params(c, fp, &leads);
             WireComponent {
                 id: c.id.clone(),
                 kind,
