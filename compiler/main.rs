@@ -494,8 +494,9 @@ fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     let tmp = dir.join(format!(".{name}.trilane-tmp-{}", std::process::id()));
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
+        // No fsync: the rename is what makes the file appear whole to a
+        // reader; a build is redone, not recovered, after a power cut.
         f.write_all(bytes)?;
-        f.sync_all()?;
         if let Ok(meta) = std::fs::metadata(path) {
             std::fs::set_permissions(&tmp, meta.permissions())?;
         }
