@@ -984,14 +984,18 @@ fn build(a: &BuildArgs) -> u8 {
         Err(code) => return code,
     };
     let fp = &b.chosen.floorplan;
-    let netlist = match trilane::layout::netlist::to_json(fp) {
+    // The two largest outputs are independent: written side by side.
+    let (netlist, svg) = rayon::join(
+        || trilane::layout::netlist::to_json(fp),
+        || trilane::layout::svg::floorplan_svg(fp),
+    );
+    let netlist = match netlist {
         Ok(t) => t,
         Err(e) => {
             eprintln!("error: internal: the netlist of chip {}: {e}", circuit.name);
             return 70;
         }
     };
-    let svg = trilane::layout::svg::floorplan_svg(fp);
     let names = ["netlist.json", "floorplan.svg", "report.txt", "report.json"];
     let outputs: Vec<String> = names
         .iter()

@@ -45,6 +45,13 @@ fn main() {
     )
     .unwrap();
     eprintln!("cells {:?} ({} cells)", t.elapsed(), cm.cells().count());
+    let mut hist = std::collections::BTreeMap::new();
+    for c in cm.cells() {
+        if let trilane::cell::CellDesign::Geometric(r) = &*c.design {
+            *hist.entry(r.iterations).or_insert(0) += 1;
+        }
+    }
+    eprintln!("iterations {:?}", hist);
     let names: Vec<String> = (0..n).map(|i| format!("m{i}")).collect();
     let t = Instant::now();
     let fp = trilane::layout::place(
@@ -66,6 +73,15 @@ fn main() {
     let t = Instant::now();
     let tu = fp.transfer();
     eprintln!("transfer {:?}", t.elapsed());
+    let t = Instant::now();
+    let w = trilane::layout::netlist::netlist(&fp).unwrap();
+    eprintln!("netlist struct {:?}", t.elapsed());
+    let t2 = Instant::now();
+    let s = serde_json::to_string_pretty(&w).unwrap();
+    eprintln!("netlist text {:?} {}", t2.elapsed(), s.len());
+    let t2 = Instant::now();
+    let s = serde_json::to_string(&w).unwrap();
+    eprintln!("netlist compact text {:?} {}", t2.elapsed(), s.len());
     let t = Instant::now();
     let nl = trilane::layout::netlist::to_json(&fp).unwrap();
     eprintln!("netlist {:?} ({} bytes)", t.elapsed(), nl.len());

@@ -31,6 +31,7 @@ pub const LEAKAGE_TARGET: f64 = 1e-6;
 pub const INTEGRATION_TOL: f64 = 1e-10;
 
 /// The law and guide a cell is designed on.
+#[derive(Clone, Copy)]
 pub struct CellContext<'a> {
     pub law: &'a SmoothLaw,
     pub fit: &'a ExponentialFit,
@@ -40,6 +41,9 @@ pub struct CellContext<'a> {
     pub rule: LengthRule,
     /// Envelope at the cell ends relative to its peak.
     pub residual: f64,
+    /// Integration tolerance (largest entry of the 3 x 3 transfer) while
+    /// refining: [`INTEGRATION_TOL`] unless a caller chooses otherwise.
+    pub integration_tol: f64,
 }
 
 impl<'a> CellContext<'a> {
@@ -71,6 +75,7 @@ impl<'a> CellContext<'a> {
             beta_per_um: 2.0 * std::f64::consts::PI * neff / process.wavelength_um,
             rule,
             residual,
+            integration_tol: INTEGRATION_TOL,
         }
     }
 }
@@ -249,7 +254,7 @@ fn refine_from(theta: f64, ctx: &CellContext, floor_nm: f64) -> Result<RefinedCe
     let analytic = geometric::analytic(theta, ctx.fit, floor_nm, ctx.rule, ctx.residual)?;
     // The first integration probes the step count; the nearby designs of
     // the iteration start from it (`Start::Trusted`).
-    let first = integrate_design(ctx, &analytic, INTEGRATION_TOL, None)?;
+    let first = integrate_design(ctx, &analytic, ctx.integration_tol, None)?;
     let analytic_quality = quality(theta, &first.matrix);
     solve(
         theta,
@@ -274,7 +279,7 @@ pub fn polish(
     steps: usize,
 ) -> Result<RefinedCell, CellError> {
     let analytic = geometric::analytic(theta, ctx.fit, ctx.min_gap_nm, ctx.rule, ctx.residual)?;
-    let u = integrate_design(ctx, &start, INTEGRATION_TOL, Some(steps))?.matrix;
+    let u = integrate_design(ctx, &start, ctx.integration_tol, Some(steps))?.matrix;
     solve(theta, ctx, analytic, None, start, u, steps, Some(jacobian))
 }
 
@@ -308,7 +313,7 @@ fn solve(
             } else {
                 dd.gap_lower_nm += h;
             }
-            let u = integrate_design(ctx, &dd, INTEGRATION_TOL, steps)?.matrix;
+            let u = integrate_design(ctx, &dd, ctx.integration_tol, steps)?.matrix;
             let fk = residuals(theta, &u);
             Ok([(fk[0] - f[0]) / h, (fk[1] - f[1]) / h])
         };
@@ -342,7 +347,7 @@ fn solve(
         let mut next = d;
         next.gap_upper_nm += du;
         next.gap_lower_nm += dl;
-        let u_next = integrate_design(ctx, &next, INTEGRATION_TOL, steps)?.matrix;
+        let u_next = integrate_design(ctx, &next, ctx.integration_tol, steps)?.matrix;
         let f_next = residuals(theta, &u_next);
         if size(f_next) < best.0 {
             best = (size(f_next), next, u_next.clone());

@@ -289,12 +289,14 @@ impl Floorplan {
     pub fn transfer_with(&self, blocks: &[(usize, DMatrix<Complex64>)]) -> DMatrix<Complex64> {
         let n = self.modes.len();
         let mut u = DMatrix::<Complex64>::identity(n, n);
+        let by_component: std::collections::HashMap<usize, &DMatrix<Complex64>> =
+            blocks.iter().map(|(k, b)| (*k, b)).collect();
         for (i, c) in self.components.iter().enumerate() {
             if c.modes.is_empty() || matches!(c.kind, Kind::Terminator { .. } | Kind::Port { .. }) {
                 continue;
             }
-            let m = match blocks.iter().find(|(k, _)| *k == i) {
-                Some((_, b)) => b.map(|z| z * 10f64.powf(-c.loss_db / 20.0)),
+            let m = match by_component.get(&i) {
+                Some(b) => b.map(|z| z * 10f64.powf(-c.loss_db / 20.0)),
                 None => c.matrix(),
             };
             apply_rows(&mut u, &c.modes, &m);
