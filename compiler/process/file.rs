@@ -47,6 +47,38 @@ struct RawFile {
     loss: Option<RawLoss>,
     tolerances: Option<RawTolerances>,
     coupling: Option<RawCoupling>,
+    mask: Option<RawMask>,
+    layers: Option<RawLayers>,
+    drc: Option<RawDeck>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawMask {
+    heater_width_um: Num,
+    contact_um: Num,
+    heater_clearance_um: Num,
+    heater_spacing_um: Num,
+}
+
+type LayerPair = Option<Spanned<Vec<i64>>>;
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawLayers {
+    core: LayerPair,
+    heater: LayerPair,
+    contact: LayerPair,
+    label: LayerPair,
+    outline: LayerPair,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDeck {
+    min_gap_nm: Num,
+    min_width_nm: Num,
+    min_bend_radius_um: Num,
 }
 
 #[derive(Deserialize)]
@@ -133,6 +165,38 @@ struct Reader {
 }
 
 impl Reader {
+    /// A GDSII layer written `[layer, datatype]`, each 0 to 255 (the
+    /// range every reader takes).
+    fn layer(&mut self, slot: &mut super::spec::GdsLayer, v: &LayerPair, key: &str) {
+        let Some(v) = v else { return };
+        match v.get_ref().as_slice() {
+            [l, d] if (0..=255).contains(l) && (0..=255).contains(d) => {
+                *slot = super::spec::GdsLayer {
+                    layer: *l as u16,
+                    datatype: *d as u16,
+                };
+                self.set.push(key.to_owned());
+            }
+            _ => self.diags.push(
+                Diagnostic::error(
+                    "process-value",
+                    format!("`{key}` must be [layer, datatype], each 0 to 255"),
+                    span(v.span()),
+                    "not a layer",
+                )
+                .with_hint("for example `core = [1, 0]`"),
+            ),
+        }
+    }
+
+    fn num_opt(&mut self, slot: &mut Option<f64>, v: &Num, key: &str) {
+        let mut x = f64::NAN;
+        self.num(&mut x, v, key, Need::Positive, 1.0);
+        if x.is_finite() {
+            *slot = Some(x);
+        }
+    }
+
     fn num(&mut self, slot: &mut f64, v: &Num, key: &str, need: Need, scale: f64) {
         let Some(v) = v else { return };
         let x = *v.get_ref();
@@ -420,6 +484,55 @@ pub fn read(src: &Source, files: &dyn FileLoader) -> Result<Process, Vec<Located
         );
     }
     let mut extra = Vec::new();
+    if let Some(x) = &raw.mask {
+        let m = &mut p.mask;
+        r.num(
+            &mut m.heater_width_um,
+            &x.heater_width_um,
+            "heater_width_um",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut m.contact_um,
+            &x.contact_um,
+            "contact_um",
+            Need::Positive,
+            1.0,
+        );
+        r.num(
+            &mut m.heater_clearance_um,
+            &x.heater_clearance_um,
+            "heater_clearance_um",
+            Need::NonNegative,
+            1.0,
+        );
+        r.num(
+            &mut m.heater_spacing_um,
+            &x.heater_spacing_um,
+            "heater_spacing_um",
+            Need::NonNegative,
+            1.0,
+        );
+    }
+    if let Some(x) = &raw.layers {
+        let l = &mut p.mask.layers;
+        r.layer(&mut l.core, &x.core, "core");
+        r.layer(&mut l.heater, &x.heater, "heater");
+        r.layer(&mut l.contact, &x.contact, "contact");
+        r.layer(&mut l.label, &x.label, "label");
+        r.layer(&mut l.outline, &x.outline, "outline");
+    }
+    if let Some(x) = &raw.drc {
+        let d = &mut p.mask.deck;
+        r.num_opt(&mut d.min_gap_nm, &x.min_gap_nm, "drc.min_gap_nm");
+        r.num_opt(&mut d.min_width_nm, &x.min_width_nm, "drc.min_width_nm");
+        r.num_opt(
+            &mut d.min_bend_radius_um,
+            &x.min_bend_radius_um,
+            "drc.min_bend_radius_um",
+        );
+    }
     if let Some(c) = &raw.coupling {
         let mut g_ref = p.coupling.g_ref_nm();
         r.num(&mut g_ref, &c.g_ref_nm, "g_ref_nm", Need::Positive, 1.0);
@@ -650,6 +763,36 @@ mod tests {
                 .unwrap()
                 .contains("`silicon`")
         );
+    }
+
+    #[test]
+    fn mask_layers_and_rule_deck_are_read_and_checked() {
+        let src = Source::new(
+            "run.toml",
+            "[mask]\nheater_width_um = 1.5\n[layers]\ncore = [3, 2]\n[drc]\nmin_gap_nm = 150\n",
+        );
+        let p = read(&src, &NoFiles).unwrap();
+        assert_eq!(p.mask.heater_width_um, 1.5);
+        assert_eq!(p.mask.layers.core.layer, 3);
+        assert_eq!(p.mask.layers.core.datatype, 2);
+        assert_eq!(p.mask.layers.heater.layer, 20, "the default map stays");
+        assert_eq!(p.mask.deck.min_gap_nm, Some(150.0));
+        assert_eq!(p.mask.deck.min_width_nm, None);
+        assert_eq!(
+            p.rules.min_gap_nm, 100.0,
+            "the deck leaves the design rules"
+        );
+        // A layer out of range and a bad deck value, each located.
+        let src = Source::new(
+            "run.toml",
+            "[layers]\nheater = [300, 0]\n[drc]\nmin_gap_nm = -1\n",
+        );
+        let e = read(&src, &NoFiles).unwrap_err();
+        let d = &e[0].diagnostics.0;
+        assert_eq!(d.len(), 2, "{d:?}");
+        assert_eq!(src.line_col(d[0].span().start), (2, 10));
+        assert!(d[0].message.contains("[layer, datatype]"), "{d:?}");
+        assert_eq!(src.line_col(d[1].span().start), (4, 14));
     }
 }
 

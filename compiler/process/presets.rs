@@ -78,6 +78,14 @@ fn si220_wire() -> Process {
             wavelength_nm: 0.0,
         },
         coupling: solved("si220_wire", 200.0),
+        mask: MaskSpec {
+            layers: LayerMap::default(),
+            heater_width_um: 2.0,
+            contact_um: 2.0,
+            heater_clearance_um: 0.5,
+            heater_spacing_um: 0.8,
+            deck: RuleDeck::default(),
+        },
         sources: vec![
             src(
                 "geometry",
@@ -112,6 +120,10 @@ fn si220_wire() -> Process {
             src(
                 "crossing 0.043 dB",
                 "Johnson, Thompson & Sahin, Opt. Express 28, 12498 (2020)",
+            ),
+            src(
+                "heater stripe 2 um, contacts 2 um, 0.5 um to another guide, 0.8 um between heaters",
+                "from memory (metal heater rules of silicon photonics foundries)",
             ),
             src(
                 "tolerances",
@@ -165,10 +177,18 @@ fn sin400_strip() -> Process {
             wavelength_nm: 0.0,
         },
         coupling: solved("sin400_strip", 500.0),
+        mask: MaskSpec {
+            layers: LayerMap::default(),
+            heater_width_um: 3.0,
+            contact_um: 3.0,
+            heater_clearance_um: 1.0,
+            heater_spacing_um: 2.0,
+            deck: RuleDeck::default(),
+        },
         sources: vec![
             src("material", "Luke et al. 2015 (Si3N4), Malitson 1965 (SiO2)"),
             src(
-                "geometry, rules, heater, loss, tolerances",
+                "geometry, rules, heater, heater drawing, loss, tolerances",
                 "from memory (typical LPCVD nitride foundry figures)",
             ),
         ],
@@ -221,13 +241,21 @@ fn silica_plc() -> Process {
             wavelength_nm: 0.0,
         },
         coupling: solved("silica_plc", 4000.0),
+        mask: MaskSpec {
+            layers: LayerMap::default(),
+            heater_width_um: 10.0,
+            contact_um: 10.0,
+            heater_clearance_um: 5.0,
+            heater_spacing_um: 5.0,
+            deck: RuleDeck::default(),
+        },
         sources: vec![
             src(
                 "material",
                 "Malitson 1965 (SiO2) plus a 0.75 % index step (common practice)",
             ),
             src(
-                "geometry, rules, heater, loss, tolerances",
+                "geometry, rules, heater, heater drawing, loss, tolerances",
                 "from memory (typical planar lightwave circuit figures)",
             ),
         ],

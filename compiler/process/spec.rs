@@ -28,8 +28,70 @@ pub struct Process {
     pub loss: Loss,
     pub tolerances: ProcessTolerances,
     pub coupling: CouplingSource,
+    /// What the mask needs: layers, heater drawing, the rule deck.
+    pub mask: MaskSpec,
     /// Source notes: (what, where it comes from).
     pub sources: Vec<(String, String)>,
+}
+
+/// A GDSII layer: number and datatype.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct GdsLayer {
+    pub layer: u16,
+    pub datatype: u16,
+}
+
+/// Where each kind of shape goes in layout.gds (docs/layout.md).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct LayerMap {
+    /// Guide cores: rails, auxiliary guides and their tapers.
+    pub core: GdsLayer,
+    /// Heater metal of thermal phase shifters.
+    pub heater: GdsLayer,
+    /// Contacts at the heaters' ends.
+    pub contact: GdsLayer,
+    /// Text: cell ids and splits, port names.
+    pub label: GdsLayer,
+    /// The chip's outline (its length by its width).
+    pub outline: GdsLayer,
+}
+
+impl Default for LayerMap {
+    fn default() -> LayerMap {
+        let l = |layer| GdsLayer { layer, datatype: 0 };
+        LayerMap {
+            core: l(1),
+            heater: l(20),
+            contact: l(21),
+            label: l(100),
+            outline: l(99),
+        }
+    }
+}
+
+/// The mask beyond the design rules: layers, heater drawing, and the rules
+/// of the deck the drawn polygons are checked against.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MaskSpec {
+    pub layers: LayerMap,
+    /// Width of a heater stripe over its guide, um.
+    pub heater_width_um: f64,
+    /// Side of the square contact at each end of a heater, um.
+    pub contact_um: f64,
+    /// Smallest distance from a heater to a guide it does not heat, um.
+    pub heater_clearance_um: f64,
+    /// Smallest distance between two heaters, um.
+    pub heater_spacing_um: f64,
+    /// Deck values that differ from the design rules (a foundry deck
+    /// stricter than the rules the design was made to).
+    pub deck: RuleDeck,
+}
+
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct RuleDeck {
+    pub min_gap_nm: Option<f64>,
+    pub min_width_nm: Option<f64>,
+    pub min_bend_radius_um: Option<f64>,
 }
 
 #[derive(Clone, Debug, PartialEq)]

@@ -497,6 +497,43 @@ pub fn to_text(p: &Process, c: &Characterisation) -> String {
         "  minimum gap {:.0} nm, minimum width {:.0} nm, minimum bend radius {} um, rail pitch {} um",
         r.min_gap_nm, r.min_width_nm, r.min_bend_radius_um, r.rail_pitch_um
     );
+    let m = &p.mask;
+    let l = &m.layers;
+    let _ = writeln!(
+        s,
+        "  mask: heaters {} um wide with {} um contacts, {} um from other guides, {} um apart; layers core {}/{}, heater {}/{}, contact {}/{}, label {}/{}, outline {}/{}",
+        m.heater_width_um,
+        m.contact_um,
+        m.heater_clearance_um,
+        m.heater_spacing_um,
+        l.core.layer,
+        l.core.datatype,
+        l.heater.layer,
+        l.heater.datatype,
+        l.contact.layer,
+        l.contact.datatype,
+        l.label.layer,
+        l.label.datatype,
+        l.outline.layer,
+        l.outline.datatype
+    );
+    let deck: Vec<String> = [
+        m.deck.min_gap_nm.map(|v| format!("minimum gap {v} nm")),
+        m.deck.min_width_nm.map(|v| format!("minimum width {v} nm")),
+        m.deck
+            .min_bend_radius_um
+            .map(|v| format!("minimum bend radius {v} um")),
+    ]
+    .into_iter()
+    .flatten()
+    .collect();
+    if !deck.is_empty() {
+        let _ = writeln!(
+            s,
+            "  rule deck (checked on the mask, stricter than the design): {}",
+            deck.join(", ")
+        );
+    }
     let _ = writeln!(s, "\nphase shifters");
     let _ = writeln!(
         s,
