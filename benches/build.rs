@@ -60,6 +60,16 @@ fn bench(c: &mut Criterion) {
         });
     }
     g.finish();
+    // The mask of the 32-mode chip: polygons, GDSII stream and design-rule
+    // checks (issue goal: under 0.2 s added to the build).
+    let chip = haar_chip(32, 7);
+    let fp = build(&chip, &p, o).unwrap().chosen.floorplan;
+    let mut g = c.benchmark_group("mask_haar_mesh");
+    g.sample_size(10);
+    g.bench_function("32_modes_gds_and_drc", |b| {
+        b.iter(|| trilane::layout::mask::build(&fp, true).unwrap())
+    });
+    g.finish();
 }
 
 criterion_group!(benches, bench);

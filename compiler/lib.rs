@@ -20,10 +20,12 @@
 //!    (flat or local `Mesh`), `compile::cells::realise` (`CellMesh`),
 //!    `layout::place` (`Floorplan`), the nominal figures; `auto` builds both
 //!    strategies and chooses
-//! 8. exporters of the `Floorplan`: `layout::netlist`, `layout::svg`
+//! 8. exporters of the `Floorplan`: `layout::netlist`, `layout::svg`,
+//!    `layout::mask` (the polygons, written by `layout::gds`, checked by
+//!    `layout::drc`)
 //! 9. `report`            text tables, JSON wire types, figures
 //!
-//! The GDSII mask and the budget follow (see README.md for what works today).
+//! The fidelity budget follows (see README.md for what works today).
 //!
 //! The core takes text and values and returns values; only `main.rs` touches
 //! the file system, and diagnostics are data until `diagnostic::render`.

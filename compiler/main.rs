@@ -16,11 +16,12 @@ use trilane::source::{self, Source, Span};
 /// This release has the front end (`check` validates circuit files, `fmt`
 /// formats them), the linear-optical core (`simulate` computes what a chip's
 /// network does), the process model (`process`), the cell (`cell` designs
-/// one three-waveguide cell) and the chip build (`build`: netlist,
-/// floorplan picture and reports). The GDSII mask and the budget follow.
+/// one three-waveguide cell) and the chip build (`build`: netlist, GDSII
+/// mask checked against the design rules, floorplan picture and reports).
+/// The fidelity budget follows.
 ///
 /// Exit codes: 0 success; 1 the input has errors (or a built chip misses a
-/// requirement); 2 usage error (bad
+/// requirement or breaks a design rule); 2 usage error (bad
 /// options, unreadable file); 70 internal error (please report it).
 #[derive(Parser)]
 #[command(
@@ -102,12 +103,13 @@ enum Command {
         #[command(flatten)]
         compile: CompileArgs,
     },
-    /// Compile a chip: netlist, floorplan picture and reports in a folder
+    /// Compile a chip: netlist, mask, floorplan picture and reports in a folder
     ///
-    /// Writes DIR/netlist.json, DIR/floorplan.svg, DIR/report.txt and
-    /// DIR/report.json, each atomically, and prints the summary. An input
-    /// error writes nothing; a requirement the nominal chip misses still
-    /// writes everything and exits 1.
+    /// Writes DIR/netlist.json, DIR/layout.gds, DIR/floorplan.svg,
+    /// DIR/report.txt and DIR/report.json, each atomically, and prints the
+    /// summary. An input error writes nothing; a requirement the nominal
+    /// chip misses, or a design rule the drawn mask breaks, still writes
+    /// everything and exits 1.
     Build(BuildArgs),
     /// Show a process: materials, the guide's mode, the coupling law and its
     /// fits, design rules, phase shifters, loss and tolerances
@@ -911,6 +913,16 @@ struct BuildArgs {
     /// Print report.json on stdout instead of the summary
     #[arg(long)]
     json: bool,
+    /// Design-rule checks on the drawn polygons: `on` (a violation exits 1)
+    /// or `off` for experiments (the report says they were not run)
+    #[arg(long, value_enum, default_value = "on")]
+    drc: DrcArg,
+}
+
+#[derive(Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+enum DrcArg {
+    On,
+    Off,
 }
 
 fn cell_kind(a: CellKindArg) -> trilane::cell::CellKind {
@@ -984,10 +996,15 @@ fn build(a: &BuildArgs) -> u8 {
         Err(code) => return code,
     };
     let fp = &b.chosen.floorplan;
-    // The two largest outputs are independent: written side by side.
-    let (netlist, svg) = rayon::join(
+    // The outputs are independent: made side by side.
+    let (netlist, (svg, mask)) = rayon::join(
         || trilane::layout::netlist::to_json(fp),
-        || trilane::layout::svg::floorplan_svg(fp),
+        || {
+            rayon::join(
+                || trilane::layout::svg::floorplan_svg(fp),
+                || trilane::layout::mask::build(fp, a.drc == DrcArg::On),
+            )
+        },
     );
     let netlist = match netlist {
         Ok(t) => t,
@@ -996,23 +1013,38 @@ fn build(a: &BuildArgs) -> u8 {
             return 70;
         }
     };
-    let names = ["netlist.json", "floorplan.svg", "report.txt", "report.json"];
+    let (gds, mask) = match mask {
+        Ok(m) => m,
+        Err(e) => {
+            eprintln!("error: chip {}: layout.gds: {e}", circuit.name);
+            return 1;
+        }
+    };
+    let names = [
+        "netlist.json",
+        "layout.gds",
+        "floorplan.svg",
+        "report.txt",
+        "report.json",
+    ];
     let outputs: Vec<String> = names
         .iter()
         .map(|n| a.out.join(n).display().to_string())
         .collect();
     let checks = trilane::report::build::check_requirements(&b, &src);
-    let text = trilane::report::build::to_text(&b, &checks, &outputs);
-    let json =
-        serde_json::to_string_pretty(&trilane::report::build::to_json(&b, &checks, &outputs))
-            .expect("the report serialises")
-            + "\n";
+    let text = trilane::report::build::to_text(&b, &checks, &mask, &outputs);
+    let json = serde_json::to_string_pretty(&trilane::report::build::to_json(
+        &b, &checks, &mask, &outputs,
+    ))
+    .expect("the report serialises")
+        + "\n";
     if let Err(e) = std::fs::create_dir_all(&a.out) {
         eprintln!("error: cannot make {}: {}", a.out.display(), io_reason(&e));
         return 2;
     }
     for (name, bytes) in names.iter().zip([
         netlist.as_bytes(),
+        gds.as_slice(),
         svg.as_bytes(),
         text.as_bytes(),
         json.as_bytes(),
@@ -1027,6 +1059,7 @@ fn build(a: &BuildArgs) -> u8 {
     let _ = std::io::stdout().lock().write_all(shown.as_bytes());
     let failed: Vec<&trilane::report::build::RequirementCheck> =
         checks.iter().filter(|c| c.ok == Some(false)).collect();
+    let mut code = 0;
     if !failed.is_empty() {
         for f in &failed {
             eprintln!(
@@ -1039,9 +1072,29 @@ fn build(a: &BuildArgs) -> u8 {
                 f.note.clone().unwrap_or_default()
             );
         }
-        return 1;
+        code = 1;
     }
-    0
+    let violations = mask.violations();
+    if !violations.is_empty() {
+        for v in violations
+            .iter()
+            .take(trilane::report::build::VIOLATIONS_SHOWN)
+        {
+            eprintln!(
+                "error: chip {}: design rule {}",
+                circuit.name,
+                trilane::report::build::violation_text(v, fp)
+            );
+        }
+        if violations.len() > trilane::report::build::VIOLATIONS_SHOWN {
+            eprintln!(
+                "error: ... and {} more design-rule violations (all in report.json)",
+                violations.len() - trilane::report::build::VIOLATIONS_SHOWN
+            );
+        }
+        code = 1;
+    }
+    code
 }
 
 #[derive(clap::Args)]

@@ -88,6 +88,23 @@ fn main() {
     let t = Instant::now();
     let svg = trilane::layout::svg::floorplan_svg(&fp);
     eprintln!("svg {:?} ({} bytes)", t.elapsed(), svg.len());
+    let t = Instant::now();
+    let m = trilane::layout::mask::mask(&fp);
+    eprintln!("mask {:?} ({} structures)", t.elapsed(), m.structures.len());
+    let t = Instant::now();
+    let g = trilane::layout::mask::to_gds(&m, &fp).unwrap();
+    eprintln!("gds {:?} ({} bytes)", t.elapsed(), g.len());
+    let t = Instant::now();
+    let shapes = m.flat(&fp);
+    let r = trilane::layout::mask::rules(&fp);
+    let d = trilane::layout::drc::check(&shapes, &r);
+    eprintln!(
+        "drc {:?} ({} shapes, {} guides, {} violations)",
+        t.elapsed(),
+        d.shapes,
+        d.guides,
+        d.violations.len()
+    );
     let (f, _) = trilane::optics::logical::mode_fidelity(&u, &tu);
     eprintln!("1-F {:e}", 1.0 - f);
 }

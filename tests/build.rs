@@ -341,9 +341,19 @@ fn build_writes_the_outputs_and_snapshots_hold() {
         "{}",
         String::from_utf8_lossy(&r.stderr)
     );
-    for f in ["netlist.json", "floorplan.svg", "report.txt", "report.json"] {
+    for f in [
+        "netlist.json",
+        "layout.gds",
+        "floorplan.svg",
+        "report.txt",
+        "report.json",
+    ] {
         assert!(out.join(f).exists(), "{f}");
     }
+    // The GDSII stream as readable records (never raw bytes).
+    let gds = trilane::layout::gds::dump(&std::fs::read(out.join("layout.gds")).unwrap()).unwrap();
+    assert!(gds.starts_with("HEADER 600\n") && gds.ends_with("ENDLIB\n"));
+    snapshot("tiny.gds.txt", &gds);
     let netlist: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("netlist.json")).unwrap()).unwrap();
     assert_eq!(netlist["format"], "trilane-netlist");
@@ -525,4 +535,96 @@ fn simulate_compiled_puts_the_chip_beside_the_ideal_network() {
         t.contains("compiled nominal chip") && t.contains("ideal network fidelity"),
         "{t}"
     );
+}
+
+/// A process whose rule deck asks for wider gaps than the design rules
+/// the cells were made to (a foundry deck stricter than the design).
+const STRICT_DECK: &str = "name = \"strict_deck\"
+base = \"si220_wire\"
+[drc]
+min_gap_nm = 400
+";
+
+#[test]
+fn a_rule_deck_stricter_than_the_design_fails_with_located_violations() {
+    let dir = tempfile::tempdir().unwrap();
+    let src = dir.path().join("tiny.trl");
+    std::fs::write(&src, TINY).unwrap();
+    let deck = dir.path().join("strict.toml");
+    std::fs::write(&deck, STRICT_DECK).unwrap();
+    let out = dir.path().join("out");
+    let run = |extra: &[&str]| {
+        let mut args = vec![
+            "build",
+            src.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--process",
+            deck.to_str().unwrap(),
+        ];
+        args.extend_from_slice(extra);
+        trilane().args(&args).output().unwrap()
+    };
+    let r = run(&[]);
+    let stderr = String::from_utf8_lossy(&r.stderr);
+    assert_eq!(r.status.code(), Some(1), "{stderr}");
+    assert!(stderr.contains("design rule min_gap"), "{stderr}");
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
+    let netlist: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("netlist.json")).unwrap()).unwrap();
+    let drc = &report["mask"]["drc"];
+    assert_eq!(drc["status"], "failed");
+    assert_eq!(drc["min_gap_nm"], 400.0);
+    let cells: Vec<&serde_json::Value> = netlist["components"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|c| c["kind"] == "geometric_cell")
+        .collect();
+    let violations = drc["violations"].as_array().unwrap();
+    // Every cell closes both its gaps below 400 nm at its centre: one
+    // violation per rail (rail against auxiliary guide), located there.
+    assert_eq!(violations.len(), 2 * cells.len(), "{violations:#?}");
+    for v in violations {
+        assert_eq!(v["rule"], "min_gap");
+        let cell = cells
+            .iter()
+            .find(|c| c["id"] == v["component"])
+            .unwrap_or_else(|| panic!("{v} is not at a cell"));
+        let p = &cell["params"];
+        let (x0, len) = (
+            cell["x_um"].as_f64().unwrap(),
+            p["length_um"].as_f64().unwrap(),
+        );
+        let x = v["x_um"].as_f64().unwrap();
+        // The gaps are smallest at the cell's centre, where the rails'
+        // parabolas have their vertex (a drawn vertex).
+        assert!((x - (x0 + len / 2.0)).abs() < 1e-6, "{v}");
+        let measured_nm = v["measured_um"].as_f64().unwrap() * 1e3;
+        let designed = [
+            p["gap_upper_nm"].as_f64().unwrap(),
+            p["gap_lower_nm"].as_f64().unwrap(),
+        ];
+        assert!(
+            designed.iter().any(|g| (g - measured_nm).abs() < 1e-6),
+            "{v}: {designed:?}"
+        );
+        assert!(stderr.contains(&format!("x = {x:.3} um")), "{stderr}");
+    }
+    let text = std::fs::read_to_string(out.join("report.txt")).unwrap();
+    assert!(text.contains("design rules FAILED"), "{text}");
+    // Switched off, the same chip builds and the report says so.
+    let r = run(&["--drc", "off"]);
+    assert_eq!(
+        r.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&r.stderr)
+    );
+    let text = std::fs::read_to_string(out.join("report.txt")).unwrap();
+    assert!(text.contains("NOT CHECKED (--drc off)"), "{text}");
+    let report: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
+    assert_eq!(report["mask"]["drc"]["status"], "off");
 }

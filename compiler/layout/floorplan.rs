@@ -209,6 +209,10 @@ pub struct ProcessInfo {
     pub propagation_db_per_cm: f64,
     pub bend_db: f64,
     pub p_pi_mw: f64,
+    /// Layers, heater drawing and rule deck of layout.gds.
+    pub mask: crate::process::spec::MaskSpec,
+    /// Width step of a passive phase shifter's widened section, nm.
+    pub passive_step_nm: f64,
 }
 
 impl ProcessInfo {
@@ -236,6 +240,8 @@ impl ProcessInfo {
             propagation_db_per_cm: p.loss.propagation_db_per_cm,
             bend_db: p.loss.bend_db,
             p_pi_mw: p.thermal.p_pi_mw,
+            mask: p.mask.clone(),
+            passive_step_nm: p.passive.width_step_nm,
         }
     }
 }
@@ -467,7 +473,11 @@ pub fn place(
             }
             col.cell_um = col.cell_um.max(cell.design.length_um());
             if matches!(*cell.design, CellDesign::Geometric(_)) {
-                col.lead_um = col.lead_um.max(TAPER_UM);
+                // The auxiliary guide's tapers fit in the leads, their tips
+                // the heater clearance away from the phase sections beside
+                // (the mask's design-rule check found them 0.42 um from a
+                // heater when they started right at the section's end).
+                col.lead_um = col.lead_um.max(TAPER_UM + p.mask.heater_clearance_um);
             }
         }
         col.balance_offset_um = max_d;

@@ -4,7 +4,9 @@
 
 use crate::circuit::{Metric, Requirement};
 use crate::compile::chip::{Build, Candidate};
-use crate::layout::floorplan::{ColumnRow, Kind};
+use crate::layout::drc::MaskLayer;
+use crate::layout::floorplan::{ColumnRow, Floorplan, Kind};
+use crate::layout::mask::MaskCheck;
 use crate::source::Source;
 use serde::Serialize;
 use std::fmt::Write;
@@ -174,8 +176,120 @@ pub struct JsonBuild {
     pub columns: Vec<JsonColumn>,
     pub final_phase_section: JsonColumn,
     pub requirements: Vec<RequirementCheck>,
+    pub mask: JsonMask,
     pub outputs: Vec<String>,
 }
+
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct JsonMask {
+    pub structures: usize,
+    pub instances: usize,
+    pub core_shapes: usize,
+    pub heater_shapes: usize,
+    pub contact_shapes: usize,
+    pub labels: usize,
+    pub gds_bytes: usize,
+    pub drc: JsonDrc,
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct JsonDrc {
+    /// `passed`, `failed` or `off`.
+    pub status: &'static str,
+    pub min_gap_nm: f64,
+    pub min_width_nm: f64,
+    pub min_bend_radius_um: f64,
+    pub heater_clearance_um: f64,
+    pub heater_spacing_um: f64,
+    pub shapes: usize,
+    pub guides: usize,
+    pub violations: Vec<JsonViolation>,
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct JsonViolation {
+    pub rule: &'static str,
+    pub component: String,
+    pub other: Option<String>,
+    pub x_um: f64,
+    pub y_um: f64,
+    pub measured_um: f64,
+    pub limit_um: f64,
+}
+
+fn drc_status(m: &MaskCheck) -> &'static str {
+    match &m.drc {
+        None => "off",
+        Some(s) if s.violations.is_empty() => "passed",
+        Some(_) => "failed",
+    }
+}
+
+/// The mask's account for report.json.
+pub fn mask_json(m: &MaskCheck, fp: &Floorplan) -> JsonMask {
+    let count = |l: MaskLayer| m.shapes.get(&l).copied().unwrap_or(0);
+    let id = |i: usize| {
+        fp.components
+            .get(i)
+            .map_or_else(String::new, |c| c.id.clone())
+    };
+    JsonMask {
+        structures: m.structures,
+        instances: m.instances,
+        core_shapes: count(MaskLayer::Core),
+        heater_shapes: count(MaskLayer::Heater),
+        contact_shapes: count(MaskLayer::Contact),
+        labels: m.labels,
+        gds_bytes: m.gds_bytes,
+        drc: JsonDrc {
+            status: drc_status(m),
+            min_gap_nm: m.rules.min_gap_um * 1e3,
+            min_width_nm: m.rules.min_width_um * 1e3,
+            min_bend_radius_um: m.rules.min_bend_radius_um,
+            heater_clearance_um: m.rules.heater_clearance_um,
+            heater_spacing_um: m.rules.heater_spacing_um,
+            shapes: m.drc.as_ref().map_or(0, |s| s.shapes),
+            guides: m.drc.as_ref().map_or(0, |s| s.guides),
+            violations: m
+                .violations()
+                .iter()
+                .map(|v| JsonViolation {
+                    rule: v.rule.name(),
+                    component: id(v.component),
+                    other: v.other.map(id),
+                    x_um: v.x_um,
+                    y_um: v.y_um,
+                    measured_um: v.measured_um,
+                    limit_um: v.limit_um,
+                })
+                .collect(),
+        },
+    }
+}
+
+/// One violation as a line: rule, what was measured against what, where.
+pub fn violation_text(v: &crate::layout::drc::Violation, fp: &Floorplan) -> String {
+    let id = |i: usize| fp.components.get(i).map_or("?", |c| c.id.as_str());
+    let what = match v.other {
+        Some(o) if o != v.component => format!("{} and {}", id(v.component), id(o)),
+        Some(_) => format!("between two guides of {}", id(v.component)),
+        None => id(v.component).to_owned(),
+    };
+    let measured = if v.rule == crate::layout::drc::Rule::Overlap {
+        "the guides overlap".to_owned()
+    } else {
+        format!("{:.4} um < {:.4} um", v.measured_um, v.limit_um)
+    };
+    format!(
+        "{}: {measured}, {what} at x = {:.3} um, y = {:.3} um",
+        v.rule.name(),
+        v.x_um,
+        v.y_um
+    )
+}
+
+/// Violations the text report lists (report.json lists all).
+pub const VIOLATIONS_SHOWN: usize = 20;
 
 fn spread(v: &[f64]) -> f64 {
     let max = v.iter().copied().fold(f64::NEG_INFINITY, f64::max);
@@ -201,7 +315,12 @@ fn phase_shifters(c: &Candidate) -> usize {
         .count()
 }
 
-pub fn to_json(b: &Build, checks: &[RequirementCheck], outputs: &[String]) -> JsonBuild {
+pub fn to_json(
+    b: &Build,
+    checks: &[RequirementCheck],
+    mask: &MaskCheck,
+    outputs: &[String],
+) -> JsonBuild {
     let c = &b.chosen;
     let fp = &c.floorplan;
     let l = c.figures.logical.as_ref();
@@ -252,6 +371,7 @@ pub fn to_json(b: &Build, checks: &[RequirementCheck], outputs: &[String]) -> Js
         columns: fp.columns.iter().map(column).collect(),
         final_phase_section: column(&fp.final_section),
         requirements: checks.to_vec(),
+        mask: mask_json(mask, fp),
         outputs: outputs.to_vec(),
     }
 }
@@ -261,7 +381,12 @@ fn infidelity(f: f64) -> String {
 }
 
 /// `report.txt`.
-pub fn to_text(b: &Build, checks: &[RequirementCheck], outputs: &[String]) -> String {
+pub fn to_text(
+    b: &Build,
+    checks: &[RequirementCheck],
+    mask: &MaskCheck,
+    outputs: &[String],
+) -> String {
     let c = &b.chosen;
     let fp = &c.floorplan;
     let mut s = String::new();
@@ -451,6 +576,59 @@ pub fn to_text(b: &Build, checks: &[RequirementCheck], outputs: &[String]) -> St
                     "  --   line {:<3} {limit}{unit} at {:.0}% yield: not checked here (needs the fidelity budget over fabricated chips)",
                     r.line,
                     100.0 * r.yield_level.unwrap_or(0.0),
+                );
+            }
+        }
+    }
+    let count = |l: MaskLayer| mask.shapes.get(&l).copied().unwrap_or(0);
+    let _ = writeln!(
+        s,
+        "\nmask: {} structures, {} instances; {} core shapes, {} heaters, {} contacts, {} labels; layout.gds {} bytes",
+        mask.structures,
+        mask.instances,
+        count(MaskLayer::Core),
+        count(MaskLayer::Heater),
+        count(MaskLayer::Contact),
+        mask.labels,
+        mask.gds_bytes
+    );
+    let r = &mask.rules;
+    let rules = format!(
+        "min gap {} nm, min width {} nm, min bend radius {} um, heater clearance {} um, heater spacing {} um",
+        r.min_gap_um * 1e3,
+        r.min_width_um * 1e3,
+        r.min_bend_radius_um,
+        r.heater_clearance_um,
+        r.heater_spacing_um
+    );
+    match &mask.drc {
+        None => {
+            let _ = writeln!(
+                s,
+                "  design rules NOT CHECKED (--drc off): the layout may break {rules}"
+            );
+        }
+        Some(d) if d.violations.is_empty() => {
+            let _ = writeln!(
+                s,
+                "  design rules passed on the drawn polygons ({} shapes, {} guides): {rules}",
+                d.shapes, d.guides
+            );
+        }
+        Some(d) => {
+            let _ = writeln!(
+                s,
+                "  design rules FAILED: {} violations on the drawn polygons ({rules})",
+                d.violations.len()
+            );
+            for v in d.violations.iter().take(VIOLATIONS_SHOWN) {
+                let _ = writeln!(s, "    {}", violation_text(v, fp));
+            }
+            if d.violations.len() > VIOLATIONS_SHOWN {
+                let _ = writeln!(
+                    s,
+                    "    ... and {} more (all in report.json)",
+                    d.violations.len() - VIOLATIONS_SHOWN
                 );
             }
         }
