@@ -66,6 +66,19 @@ pub fn transfer_along(
 
 const TOL: f64 = 1e-11;
 
+/// How far z (um from the coupler's start) lies outside its straight
+/// section, which runs from `reach` to `reach + straight`: the bends' x in
+/// their gap `g + x^2 / R`.
+pub fn beyond_straight_um(z: f64, reach: f64, straight: f64) -> f64 {
+    if z < reach {
+        reach - z
+    } else if z > reach + straight {
+        z - reach - straight
+    } else {
+        0.0
+    }
+}
+
 fn transfer(
     law: &SmoothLaw,
     gap: f64,
@@ -77,13 +90,7 @@ fn transfer(
 ) -> Result<DMatrix<Complex64>, CellError> {
     let total = straight + 2.0 * reach;
     let h = |z: f64| {
-        let x = if z < reach {
-            reach - z
-        } else if z > reach + straight {
-            z - reach - straight
-        } else {
-            0.0
-        };
+        let x = beyond_straight_um(z, reach, straight);
         let (dg, d) = errors(z);
         // x^2 / R in um -> nm
         let g = gap + dg + x * x / radius_um * 1e3;

@@ -189,13 +189,7 @@ fn coupler_guides(k: &crate::cell::coupler::CouplerDesign, z0: f64, w: f64) -> V
     let mut zs: Vec<f64> = bend.clone();
     zs.extend(bend.iter().map(|z| z + reach + straight_um).skip(1));
     let inner = |z: f64| {
-        let x = if z < reach {
-            reach - z
-        } else if z > reach + straight_um {
-            z - reach - straight_um
-        } else {
-            0.0
-        };
+        let x = crate::cell::coupler::beyond_straight_um(z, reach, straight_um);
         k.gap_nm * 1e-3 / 2.0 + x * x / (2.0 * r)
     };
     let zs_local: Vec<f64> = zs.iter().map(|z| z + z0).collect();

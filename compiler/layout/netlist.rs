@@ -17,7 +17,7 @@ use nalgebra::DMatrix;
 use num_complex::Complex64;
 use petgraph::graph::{DiGraph, NodeIndex};
 use serde::Serialize;
-use serde_json::{Map, Value, json};
+use serde_json::{Value, json};
 
 pub const FORMAT: &str = "trilane-netlist";
 pub const VERSION: u32 = 1;
@@ -75,7 +75,7 @@ pub struct WireComponent {
     pub kind: &'static str,
     pub modes: Vec<usize>,
     pub ports: Vec<String>,
-    pub params: Map<String, Value>,
+    pub params: Params,
     pub x_um: f64,
     pub y_um: f64,
     pub length_um: f64,
@@ -111,104 +111,230 @@ fn ports(kind: &Kind, modes: &[usize]) -> Vec<String> {
     }
 }
 
-fn f(x: f64) -> Value {
-    json!(x)
+/// A component's parameters, by kind (docs/netlist.md). Fields are in
+/// alphabetical order, the order the document has always had; optional
+/// ones are left out when they do not apply.
+#[derive(Serialize)]
+#[serde(untagged)]
+pub enum Params {
+    Port {
+        mode_name: String,
+        side: &'static str,
+    },
+    Waveguide {
+        #[serde(skip_serializing_if = "Option::is_none")]
+        dummy_bends: Option<usize>,
+        #[serde(skip_serializing_if = "Option::is_none")]
+        dummy_offset_um: Option<f64>,
+        loss_db: f64,
+        path_um: f64,
+        phase_rad: f64,
+        role: &'static str,
+    },
+    Bend {
+        angle_rad: f64,
+        loss_db: f64,
+        offset_um: f64,
+        path_um: f64,
+        phase_rad: f64,
+        radius_um: f64,
+    },
+    PhaseShifter {
+        length_um: f64,
+        loss_db: f64,
+        phase_rad: f64,
+        #[serde(skip_serializing_if = "Option::is_none")]
+        power_mw: Option<f64>,
+        tuning: &'static str,
+        #[serde(skip_serializing_if = "Option::is_none")]
+        widened_um: Option<f64>,
+    },
+    Crossing {
+        element: Option<usize>,
+        loss_db: f64,
+        mesh_phi: f64,
+        path_um: f64,
+        phase_rad: f64,
+        radius_um: f64,
+        routing_swap: bool,
+    },
+    Terminator {
+        side: &'static str,
+        taper_um: f64,
+        tip_width_nm: f64,
+    },
+    Geometric {
+        aux_width_nm: f64,
+        bend_nm_per_um2: f64,
+        bend_per_m: f64,
+        beta_per_um: f64,
+        element: Option<usize>,
+        end_gap_lower_nm: f64,
+        end_gap_upper_nm: f64,
+        gap_lower_nm: f64,
+        gap_upper_nm: f64,
+        lead: Lead,
+        leakage: f64,
+        length_um: f64,
+        loss_db: f64,
+        mesh_phi: f64,
+        rail_block: ComplexMatrix,
+        residual: f64,
+        split_error: f64,
+        swap: bool,
+        theta: f64,
+        width_nm: f64,
+    },
+    Coupler {
+        bend_radius_um: f64,
+        bend_reach_um: f64,
+        element: Option<usize>,
+        gap_nm: f64,
+        lead: Lead,
+        length_um: f64,
+        loss_db: f64,
+        mesh_phi: f64,
+        rail_block: ComplexMatrix,
+        straight_um: f64,
+        swap: bool,
+        theta: f64,
+        width_nm: f64,
+    },
+    Mzi {
+        arm_um: f64,
+        coupler: MziCoupler,
+        element: Option<usize>,
+        lead: Lead,
+        length_um: f64,
+        loss_db: f64,
+        mesh_phi: f64,
+        phi: f64,
+        power_mw: f64,
+        rail_block: ComplexMatrix,
+        swap: bool,
+        theta: f64,
+        width_nm: f64,
+    },
+}
+
+#[derive(Serialize)]
+pub struct Lead {
+    pub bends: Vec<String>,
+    pub radius_um: f64,
+}
+
+#[derive(Serialize)]
+pub struct MziCoupler {
+    pub bend_radius_um: f64,
+    pub bend_reach_um: f64,
+    pub gap_nm: f64,
+    pub length_um: f64,
+    pub rail_block: ComplexMatrix,
+    pub straight_um: f64,
+}
+
+fn side_name(side: Side) -> &'static str {
+    match side {
+        Side::Input => "input",
+        Side::Output => "output",
+    }
 }
 
 fn params(
     c: &super::floorplan::Component,
     fp: &Floorplan,
     leads: &std::collections::BTreeMap<&str, Vec<&str>>,
-) -> (&'static str, Map<String, Value>) {
-    let mut m = Map::new();
-    let mut put = |k: &str, v: Value| {
-        m.insert(k.to_owned(), v);
+) -> (&'static str, Params) {
+    let lead = || Lead {
+        bends: leads
+            .get(c.id.as_str())
+            .map(|v| v.iter().map(|s| (*s).to_owned()).collect())
+            .unwrap_or_default(),
+        radius_um: fp.process.min_bend_radius_um,
     };
-    let kind = match &c.kind {
-        Kind::Port { side } => {
-            put(
-                "side",
-                json!(if *side == Side::Input {
-                    "input"
-                } else {
-                    "output"
-                }),
-            );
-            put("mode_name", json!(fp.modes[c.modes[0]]));
-            "port"
-        }
+    match &c.kind {
+        Kind::Port { side } => (
+            "port",
+            Params::Port {
+                mode_name: fp.modes[c.modes[0]].clone(),
+                side: side_name(*side),
+            },
+        ),
         Kind::Waveguide {
             role,
             dummy_offset_um,
             dummy_bends,
         } => {
-            put(
-                "role",
-                json!(match role {
-                    WaveguideRole::Straight => "straight",
-                    WaveguideRole::Balance => "balance",
-                }),
-            );
-            put("phase_rad", f(c.phase_rad));
-            put("loss_db", f(c.loss_db));
-            put("path_um", f(c.path_um));
-            if *role == WaveguideRole::Balance && *dummy_bends > 0 {
-                put("dummy_bends", json!(dummy_bends));
-                put("dummy_offset_um", f(*dummy_offset_um));
-            }
-            "waveguide"
+            let dummy = *role == WaveguideRole::Balance && *dummy_bends > 0;
+            (
+                "waveguide",
+                Params::Waveguide {
+                    dummy_bends: dummy.then_some(*dummy_bends),
+                    dummy_offset_um: dummy.then_some(*dummy_offset_um),
+                    loss_db: c.loss_db,
+                    path_um: c.path_um,
+                    phase_rad: c.phase_rad,
+                    role: match role {
+                        WaveguideRole::Straight => "straight",
+                        WaveguideRole::Balance => "balance",
+                    },
+                },
+            )
         }
         Kind::Bend {
             radius_um,
             offset_um,
             angle_rad,
-        } => {
-            put("radius_um", f(*radius_um));
-            put("offset_um", f(*offset_um));
-            put("angle_rad", f(*angle_rad));
-            put("path_um", f(c.path_um));
-            put("phase_rad", f(c.phase_rad));
-            put("loss_db", f(c.loss_db));
-            "bend"
-        }
+        } => (
+            "bend",
+            Params::Bend {
+                angle_rad: *angle_rad,
+                loss_db: c.loss_db,
+                offset_um: *offset_um,
+                path_um: c.path_um,
+                phase_rad: c.phase_rad,
+                radius_um: *radius_um,
+            },
+        ),
         Kind::PhaseShifter {
             tuning,
             power_mw,
             widened_um,
         } => {
-            put("phase_rad", f(c.phase_rad));
-            put("tuning", json!(tuning.name()));
-            put("length_um", f(c.length_um));
-            put("loss_db", f(c.loss_db));
-            match tuning {
-                super::floorplan::Tuning::Thermal => put("power_mw", f(*power_mw)),
-                super::floorplan::Tuning::Passive => put("widened_um", f(*widened_um)),
-            }
-            "phase_shifter"
+            let thermal = *tuning == super::floorplan::Tuning::Thermal;
+            (
+                "phase_shifter",
+                Params::PhaseShifter {
+                    length_um: c.length_um,
+                    loss_db: c.loss_db,
+                    phase_rad: c.phase_rad,
+                    power_mw: thermal.then_some(*power_mw),
+                    tuning: tuning.name(),
+                    widened_um: (!thermal).then_some(*widened_um),
+                },
+            )
         }
-        Kind::Crossing { phi, swap, element } => {
-            put("mesh_phi", f(*phi));
-            put("routing_swap", json!(swap));
-            put("element", json!(element));
-            put("phase_rad", f(c.phase_rad));
-            put("loss_db", f(c.loss_db));
-            put("path_um", f(c.path_um));
-            put("radius_um", f(fp.process.min_bend_radius_um));
-            "crossing"
-        }
-        Kind::Terminator { taper_um, side } => {
-            put("taper_um", f(*taper_um));
-            put(
-                "side",
-                json!(if *side == Side::Input {
-                    "input"
-                } else {
-                    "output"
-                }),
-            );
-            put("tip_width_nm", f(0.0));
-            "terminator"
-        }
+        Kind::Crossing { phi, swap, element } => (
+            "crossing",
+            Params::Crossing {
+                element: *element,
+                loss_db: c.loss_db,
+                mesh_phi: *phi,
+                path_um: c.path_um,
+                phase_rad: c.phase_rad,
+                radius_um: fp.process.min_bend_radius_um,
+                routing_swap: *swap,
+            },
+        ),
+        Kind::Terminator { taper_um, side } => (
+            "terminator",
+            Params::Terminator {
+                side: side_name(*side),
+                taper_um: *taper_um,
+                // The narrowest tip the process makes (mask.rs draws it).
+                tip_width_nm: fp.process.min_width_nm,
+            },
+        ),
         Kind::Cell {
             cell,
             theta,
@@ -216,83 +342,85 @@ fn params(
             swap,
             element,
         } => {
-            put("theta", f(*theta));
-            put("mesh_phi", f(*phi));
-            put("swap", json!(swap));
-            put("element", json!(element));
-            put("loss_db", f(c.loss_db));
-            put(
-                "rail_block",
-                serde_json::to_value(ComplexMatrix::of(&cell.rail_block())).expect("numbers"),
-            );
-            put("width_nm", f(fp.guide_width_nm));
+            let rail_block = ComplexMatrix::of(&cell.rail_block());
             match &**cell {
                 CellDesign::Geometric(r) => {
                     let d = &r.design;
-                    put("gap_upper_nm", f(d.gap_upper_nm));
-                    put("gap_lower_nm", f(d.gap_lower_nm));
-                    put("bend_per_m", f(d.bend_per_m()));
-                    put("bend_nm_per_um2", f(d.bend_nm_per_um2));
-                    put("length_um", f(d.length_um));
-                    put("residual", f(d.residual));
                     let (gu, gl) = d.gaps_nm(0.0);
-                    put("end_gap_upper_nm", f(gu));
-                    put("end_gap_lower_nm", f(gl));
-                    put("aux_width_nm", f(fp.guide_width_nm));
-                    put("beta_per_um", f(fp.beta_per_um));
-                    put("split_error", f(r.quality.split_error));
-                    put("leakage", f(r.quality.leakage));
-                    put("lead", lead_of(c, fp, leads));
-                    "geometric_cell"
+                    (
+                        "geometric_cell",
+                        Params::Geometric {
+                            aux_width_nm: fp.guide_width_nm,
+                            bend_nm_per_um2: d.bend_nm_per_um2,
+                            bend_per_m: d.bend_per_m(),
+                            beta_per_um: fp.beta_per_um,
+                            element: *element,
+                            end_gap_lower_nm: gl,
+                            end_gap_upper_nm: gu,
+                            gap_lower_nm: d.gap_lower_nm,
+                            gap_upper_nm: d.gap_upper_nm,
+                            lead: lead(),
+                            leakage: r.quality.leakage,
+                            length_um: d.length_um,
+                            loss_db: c.loss_db,
+                            mesh_phi: *phi,
+                            rail_block,
+                            residual: d.residual,
+                            split_error: r.quality.split_error,
+                            swap: *swap,
+                            theta: *theta,
+                            width_nm: fp.guide_width_nm,
+                        },
+                    )
                 }
-                CellDesign::Coupler(k) => {
-                    put("gap_nm", f(k.gap_nm));
-                    put("straight_um", f(k.straight_um));
-                    put("bend_radius_um", f(k.bend_radius_um));
-                    put("bend_reach_um", f(k.bend_reach_um));
-                    put("length_um", f(k.length_um));
-                    put("lead", lead_of(c, fp, leads));
-                    "coupler"
-                }
-                CellDesign::Mzi(z) => {
-                    put("phi", f(z.phase_rad));
-                    put("arm_um", f(z.arm_um));
-                    put("length_um", f(z.length_um));
-                    put(
-                        "power_mw",
-                        f(
-                            fp.process.p_pi_mw * z.phase_rad.rem_euclid(std::f64::consts::TAU)
-                                / std::f64::consts::PI,
-                        ),
-                    );
-                    put(
-                        "coupler",
-                        json!({
-                            "gap_nm": z.coupler.gap_nm,
-                            "straight_um": z.coupler.straight_um,
-                            "bend_radius_um": z.coupler.bend_radius_um,
-                            "bend_reach_um": z.coupler.bend_reach_um,
-                            "length_um": z.coupler.length_um,
-                            "rail_block": ComplexMatrix::of(&z.coupler.transfer),
-                        }),
-                    );
-                    put("lead", lead_of(c, fp, leads));
-                    "mzi"
-                }
+                CellDesign::Coupler(k) => (
+                    "coupler",
+                    Params::Coupler {
+                        bend_radius_um: k.bend_radius_um,
+                        bend_reach_um: k.bend_reach_um,
+                        element: *element,
+                        gap_nm: k.gap_nm,
+                        lead: lead(),
+                        length_um: k.length_um,
+                        loss_db: c.loss_db,
+                        mesh_phi: *phi,
+                        rail_block,
+                        straight_um: k.straight_um,
+                        swap: *swap,
+                        theta: *theta,
+                        width_nm: fp.guide_width_nm,
+                    },
+                ),
+                CellDesign::Mzi(z) => (
+                    "mzi",
+                    Params::Mzi {
+                        arm_um: z.arm_um,
+                        coupler: MziCoupler {
+                            bend_radius_um: z.coupler.bend_radius_um,
+                            bend_reach_um: z.coupler.bend_reach_um,
+                            gap_nm: z.coupler.gap_nm,
+                            length_um: z.coupler.length_um,
+                            rail_block: ComplexMatrix::of(&z.coupler.transfer),
+                            straight_um: z.coupler.straight_um,
+                        },
+                        element: *element,
+                        lead: lead(),
+                        length_um: z.length_um,
+                        loss_db: c.loss_db,
+                        mesh_phi: *phi,
+                        phi: z.phase_rad,
+                        power_mw: fp.process.p_pi_mw
+                            * z.phase_rad.rem_euclid(std::f64::consts::TAU)
+                            / std::f64::consts::PI,
+                        rail_block,
+                        swap: *swap,
+                        theta: *theta,
+                        width_nm: fp.guide_width_nm,
+                    },
+                ),
             }
         }
-    };
-    (kind, m)
-}
-
-/// The cell's lead-in and lead-out bends, by component id.
-fn lead_of(
-    c: &super::floorplan::Component,
-    fp: &Floorplan,
-    leads: &std::collections::BTreeMap<&str, Vec<&str>>,
-) -> Value {
-    let ids = leads.get(c.id.as_str()).cloned().unwrap_or_default();
-    json!({ "bends": ids, "radius_um": fp.process.min_bend_radius_um })
+    }
 }
 
 /// Lead bends by the id of their cell (`<cell>.lead_in<m>` / `lead_out`).
