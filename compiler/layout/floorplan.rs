@@ -348,7 +348,7 @@ pub fn s_bend(d_um: f64, r_um: f64) -> (f64, f64, f64) {
 
 /// A cell's rails' centre-to-centre separation from the column's axis at
 /// the cell's ends: (upper, lower), um from the midpoint between the rails.
-fn entry_offsets_um(d: &CellDesign, width_nm: f64) -> (f64, f64) {
+pub(crate) fn entry_offsets_um(d: &CellDesign, width_nm: f64) -> (f64, f64) {
     let w = width_nm * 1e-3;
     match d {
         CellDesign::Geometric(r) => {

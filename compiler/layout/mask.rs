@@ -330,8 +330,9 @@ fn draw(fp: &Floorplan, i: usize) -> Option<(String, &'static str, Vec<Drawn>)> 
             }
             CellDesign::Mzi(z) => {
                 let k = &z.coupler;
-                let half =
-                    (w + k.gap_nm * 1e-3) / 2.0 + k.bend_reach_um.powi(2) / k.bend_radius_um / 2.0;
+                // The arms keep the couplers' end separation, where the
+                // lead bends meet them (floorplan.rs).
+                let half = super::floorplan::entry_offsets_um(cell, fp.guide_width_nm).0;
                 let mut shapes = coupler_guides(k, 0.0, w);
                 let x0 = k.length_um;
                 for s in [1.0, -1.0] {
@@ -561,6 +562,11 @@ pub struct MaskCheck {
 }
 
 impl MaskCheck {
+    /// Shapes drawn on `layer`, every instance counted.
+    pub fn count(&self, layer: MaskLayer) -> usize {
+        self.shapes.get(&layer).copied().unwrap_or(0)
+    }
+
     pub fn violations(&self) -> &[super::drc::Violation] {
         self.drc.as_ref().map_or(&[], |s| s.violations.as_slice())
     }

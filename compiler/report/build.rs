@@ -227,7 +227,7 @@ fn drc_status(m: &MaskCheck) -> &'static str {
 
 /// The mask's account for report.json.
 pub fn mask_json(m: &MaskCheck, fp: &Floorplan) -> JsonMask {
-    let count = |l: MaskLayer| m.shapes.get(&l).copied().unwrap_or(0);
+    let count = |l| m.count(l);
     let id = |i: usize| {
         fp.components
             .get(i)
@@ -580,7 +580,7 @@ pub fn to_text(
             }
         }
     }
-    let count = |l: MaskLayer| mask.shapes.get(&l).copied().unwrap_or(0);
+    let count = |l| mask.count(l);
     let _ = writeln!(
         s,
         "\nmask: {} structures, {} instances; {} core shapes, {} heaters, {} contacts, {} labels; layout.gds {} bytes",
