@@ -4,7 +4,7 @@
 //! those dumps, never raw bytes).
 //!
 //! The format as publicly described (Calma, "GDSII Stream Format Manual",
-//! release 6.0, 1987): a stream is a sequence of records, each a 2-byte
+//! release 6.0, 1987; citation from memory): a stream is a sequence of records, each a 2-byte
 //! big-endian length (header included), a record type byte and a data type
 //! byte (0 none, 1 bit array, 2 two-byte integers, 3 four-byte integers,
 //! 5 eight-byte reals, 6 ASCII text padded with NUL to an even length).
@@ -337,7 +337,8 @@ mod tests {
 
     #[test]
     fn eight_byte_reals_match_values_worked_by_hand() {
-        // Worked from the format description (module doc): the fraction is
+        // Worked by hand from the format description (module doc), and
+        // checked with Python's exact `fractions.Fraction`: the fraction is
         // in [1/16, 1), so 1 = (1/16) 16^1: exponent 65 = 0x41, fraction
         // 0x10000000000000; 0.5 = (8/16) 16^0: 0x40, 0x80...; -2 =
         // -(2/16) 16^1: sign bit with 0x41, 0x20...; 16 = (1/16) 16^2.
